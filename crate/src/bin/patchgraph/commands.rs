@@ -1,0 +1,216 @@
+//! The subcommands: each reads its files, calls the library, and prints text or one JSON object.
+
+use crate::terminal::{write_atomically, TerminalProgress};
+use crate::{MethodArg, NoiseArg};
+use patchgraph::codec::{self, DecodeLimits, OutputFormat};
+use patchgraph::planes::{BitDepth, Image};
+use patchgraph::settings::{Method, NoiseModel, Settings, Sigma};
+use patchgraph::{metrics, pipeline, Error};
+use serde_json::json;
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+pub struct Failure {
+    pub code: u8,
+    pub message: String,
+}
+
+impl Failure {
+    fn user(message: String) -> Self {
+        Failure { code: 2, message }
+    }
+    /// A library error about one file, prefixed with the file's name.
+    fn about(path: &Path, e: Error) -> Self {
+        let code = match e {
+            Error::Cancelled => 130,
+            ref e if e.is_user_error() => 2,
+            _ => 1,
+        };
+        Failure { code, message: format!("{}: {e}", path.display()) }
+    }
+}
+
+type CmdResult = Result<(), Failure>;
+
+fn read_image(path: &Path, limits: &DecodeLimits) -> Result<Image, Failure> {
+    let bytes = std::fs::read(path).map_err(|e| Failure::user(format!("{}: cannot read the file ({e})", path.display())))?;
+    codec::decode(&bytes, limits).map_err(|e| Failure::about(path, e))
+}
+
+fn output_format(path: &Path) -> Result<OutputFormat, Failure> {
+    path.extension().and_then(|e| e.to_str()).and_then(OutputFormat::from_extension).ok_or_else(|| {
+        Failure::user(format!("{}: the output name must end in .png, .tif, .tiff, .bmp or .jpg", path.display()))
+    })
+}
+
+/// Refuses to write over the input: the user's original is never altered.
+fn refuse_same_file(input: &Path, output: &Path) -> CmdResult {
+    if let (Ok(a), Ok(b)) = (std::fs::canonicalize(input), std::fs::canonicalize(output)) {
+        if a == b {
+            return Err(Failure::user(format!(
+                "{}: the output would overwrite the input; choose another output name",
+                output.display()
+            )));
+        }
+    }
+    Ok(())
+}
+
+fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
+    write_atomically(path, bytes).map_err(|e| Failure::user(format!("{}: cannot write the file ({e})", path.display())))
+}
+
+pub struct DenoiseArgs {
+    pub input: PathBuf,
+    pub output: PathBuf,
+    pub method: Option<MethodArg>,
+    pub sigma: Option<String>,
+    pub noise: Option<NoiseArg>,
+    pub settings: Option<PathBuf>,
+    pub cut_map: Option<PathBuf>,
+    pub max_megapixels: u64,
+    pub json: bool,
+}
+
+/// Defaults, then the settings file, then flags given on the command line.
+fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
+    let mut s = match &a.settings {
+        Some(p) => {
+            let text = std::fs::read_to_string(p)
+                .map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
+            Settings::from_json(&text).map_err(|e| Failure::about(p, e))?
+        }
+        None => Settings::default(),
+    };
+    if let Some(m) = a.method {
+        s.method = match m {
+            MethodArg::PixelGraph => Method::PixelGraph,
+            MethodArg::PatchGraph => Method::PatchGraph,
+        };
+    }
+    if let Some(n) = a.noise {
+        s.noise = match n {
+            NoiseArg::Gaussian => NoiseModel::Gaussian,
+            NoiseArg::Poisson => NoiseModel::Poisson,
+        };
+    }
+    if let Some(text) = &a.sigma {
+        s.sigma = if text.eq_ignore_ascii_case("auto") {
+            Sigma::AUTO
+        } else {
+            let v: f64 = text
+                .parse()
+                .map_err(|_| Failure::user(format!("sigma must be a number or \"auto\", got \"{text}\"")))?;
+            Sigma::Value(v)
+        };
+    }
+    s.validate().map_err(|e| Failure::user(e.to_string()))?;
+    Ok(s)
+}
+
+pub fn denoise(a: DenoiseArgs) -> CmdResult {
+    let settings = resolve_settings(&a)?;
+    let format = output_format(&a.output)?;
+    if let Some(c) = &a.cut_map {
+        output_format(c)?;
+    }
+    refuse_same_file(&a.input, &a.output)?;
+    let limits = DecodeLimits { max_megapixels: a.max_megapixels, ..DecodeLimits::default() };
+    let img = read_image(&a.input, &limits)?;
+    let progress = TerminalProgress::new(!a.json && std::io::stderr().is_terminal());
+    let start = Instant::now();
+    let run = pipeline::denoise(&img, &settings, &progress).map_err(|e| Failure::about(&a.input, e));
+    progress.finish();
+    let run = run?;
+    let seconds = start.elapsed().as_secs_f64();
+    let bytes = codec::encode(&run.image, format).map_err(|e| Failure::about(&a.output, e))?;
+    write_file(&a.output, &bytes)?;
+    if let (Some(path), Some(map)) = (&a.cut_map, &run.cut_map) {
+        let scaled = patchgraph::Plane { data: map.data.iter().map(|v| v * 255.0).collect(), ..map.clone() };
+        let img = Image { width: map.width, height: map.height, depth: BitDepth::Eight, channels: vec![scaled], alpha: None };
+        let bytes = codec::encode(&img, OutputFormat::Png).map_err(|e| Failure::about(path, e))?;
+        write_file(path, &bytes)?;
+    }
+    let r = &run.report;
+    if a.json {
+        let v = json!({
+            "input": a.input.display().to_string(),
+            "output": a.output.display().to_string(),
+            "method": r.method,
+            "noise": r.noise_model,
+            "sigma": r.sigma_used,
+            "sigma_estimated": r.sigma_was_estimated,
+            "seconds": seconds,
+            "width": img.width,
+            "height": img.height,
+            "channels": img.stored_channels(),
+            "bit_depth": img.depth.bits(),
+            "noise_estimates": r.noise_estimates,
+            "residual": r.residual,
+            "work_units": r.work_units,
+            "settings": settings,
+        });
+        println!("{v}");
+    } else {
+        let how = if r.sigma_was_estimated { "estimated" } else { "given" };
+        println!(
+            "{} -> {}: {} with sigma {:.2} ({how}), {:.2} s",
+            a.input.display(),
+            a.output.display(),
+            r.method,
+            r.sigma_used,
+            seconds
+        );
+        for (c, s) in r.residual.iter().enumerate() {
+            println!(
+                "  channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
+                s.std, s.std_over_sigma, s.lag1_autocorrelation, s.edge_correlation
+            );
+        }
+    }
+    Ok(())
+}
+
+pub fn noise(input: &Path, json_out: bool) -> CmdResult {
+    let img = read_image(input, &DecodeLimits::default())?;
+    let est = pipeline::estimate_noise(&img);
+    let chosen: Vec<f64> = est.iter().map(|e| e.chosen()).collect();
+    let sigma = chosen.iter().sum::<f64>() / chosen.len() as f64;
+    if json_out {
+        let channels: Vec<_> = est
+            .iter()
+            .map(|e| {
+                json!({"immerkaer": e.immerkaer, "immerkaer_calm_blocks": e.immerkaer_calm_blocks,
+                       "wavelet_mad": e.wavelet_mad, "sigma": e.chosen()})
+            })
+            .collect();
+        let v = json!({"sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
+                       "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks; the mean over channels"});
+        println!("{v}");
+    } else {
+        println!("{}: sigma {:.3} (grey levels of {} bits)", input.display(), sigma, img.depth.bits());
+        for (c, e) in est.iter().enumerate() {
+            println!(
+                "  channel {c}: Immerkaer {:.3}, Immerkaer on calm blocks {:.3} (used), wavelet MAD {:.3}",
+                e.immerkaer, e.immerkaer_calm_blocks, e.wavelet_mad
+            );
+        }
+    }
+    Ok(())
+}
+
+pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
+    let a = read_image(clean, &DecodeLimits::default())?;
+    let b = read_image(test, &DecodeLimits::default())?;
+    let q = metrics::compare(&a, &b).map_err(|e| Failure::about(test, e))?;
+    if json_out {
+        println!("{}", serde_json::to_string(&q).map_err(|e| Failure { code: 1, message: e.to_string() })?);
+    } else {
+        println!("PSNR {:.3} dB, SSIM {:.4} (data range {})", q.psnr, q.ssim, q.data_range);
+        for (c, ch) in q.channels.iter().enumerate() {
+            println!("  channel {c}: PSNR {:.3} dB, SSIM {:.4}", ch.psnr, ch.ssim);
+        }
+    }
+    Ok(())
+}

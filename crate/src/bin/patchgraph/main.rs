@@ -1,0 +1,122 @@
+//! The command-line face of Patchgraph: parses arguments, reads and writes files, shows progress.
+//! All computation happens in the library; errors become one line on stderr and an exit code
+//! (2: bad input or settings, 1: internal failure, 130: cancelled).
+
+mod commands;
+mod terminal;
+
+use clap::{Parser, Subcommand, ValueEnum};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(name = "patchgraph", version, about = "Denoise images with graph signal processing")]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum MethodArg {
+    PixelGraph,
+    PatchGraph,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum NoiseArg {
+    Gaussian,
+    Poisson,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Denoise one image; the output keeps the input's bit depth and channels.
+    Denoise {
+        input: PathBuf,
+        /// Output file (.png, .tif, .tiff, .bmp, .jpg); written whole or not at all.
+        #[arg(short, long)]
+        output: PathBuf,
+        #[arg(long, value_enum)]
+        method: Option<MethodArg>,
+        /// Noise sigma in the input's grey levels, or "auto" to estimate it.
+        #[arg(long, allow_hyphen_values = true)]
+        sigma: Option<String>,
+        #[arg(long, value_enum)]
+        noise: Option<NoiseArg>,
+        /// Settings JSON; flags given on the command line override it.
+        #[arg(long)]
+        settings: Option<PathBuf>,
+        /// Also write the pixel graph's cut map (white = all edges cut) as an 8-bit PNG.
+        #[arg(long)]
+        cut_map: Option<PathBuf>,
+        /// Refuse images larger than this many megapixels.
+        #[arg(long, default_value_t = 64)]
+        max_megapixels: u64,
+        /// Print one JSON object on stdout instead of a text summary.
+        #[arg(long)]
+        json: bool,
+    },
+    /// Estimate the noise sigma of an image, per channel.
+    Noise {
+        input: PathBuf,
+        #[arg(long)]
+        json: bool,
+    },
+    /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
+    Metrics {
+        clean: PathBuf,
+        test: PathBuf,
+        #[arg(long)]
+        json: bool,
+    },
+}
+
+/// Clap's multi-line usage errors folded into the one line our contract promises.
+fn one_line(e: &clap::Error) -> String {
+    let text = e.to_string();
+    let parts: Vec<&str> = text
+        .lines()
+        .map(str::trim)
+        .filter(|l| !l.is_empty() && !l.starts_with("For more information") && !l.starts_with("Usage:"))
+        .collect();
+    parts.join(" ")
+}
+
+fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            use clap::error::ErrorKind;
+            if matches!(e.kind(), ErrorKind::DisplayHelp | ErrorKind::DisplayVersion) {
+                print!("{e}");
+                return ExitCode::SUCCESS;
+            }
+            eprintln!("{}", one_line(&e));
+            return ExitCode::from(2);
+        }
+    };
+    let result = match cli.command {
+        Command::Denoise { input, output, method, sigma, noise, settings, cut_map, max_megapixels, json } => {
+            commands::denoise(commands::DenoiseArgs {
+                input,
+                output,
+                method,
+                sigma,
+                noise,
+                settings,
+                cut_map,
+                max_megapixels,
+                json,
+            })
+        }
+        Command::Noise { input, json } => commands::noise(&input, json),
+        Command::Metrics { clean, test, json } => commands::metrics(&clean, &test, json),
+    };
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(failure) => {
+            eprintln!("error: {}", failure.message);
+            ExitCode::from(failure.code)
+        }
+    }
+}

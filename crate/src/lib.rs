@@ -1,0 +1,22 @@
+//! Patchgraph: image denoising with graph signal processing.
+//!
+//! The core knows nothing of terminals, browsers or file systems: it takes bytes and settings,
+//! returns bytes, numbers and typed errors. The CLI (`src/bin/patchgraph`) and, later, the wasm
+//! bindings are thin faces over [`pipeline`].
+
+pub mod codec;
+pub mod color;
+pub mod error;
+pub mod graph;
+pub mod methods;
+pub mod metrics;
+pub mod noise;
+pub mod pipeline;
+pub mod planes;
+pub mod progress;
+pub mod settings;
+
+pub use error::{Error, Result};
+pub use planes::{Image, Plane};
+pub use progress::{NoProgress, Progress};
+pub use settings::Settings;

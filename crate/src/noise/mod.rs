@@ -1,0 +1,34 @@
+//! Noise level estimation and variance-stabilising transforms.
+
+pub mod immerkaer;
+pub mod vst;
+pub mod wavelet;
+
+use crate::planes::Plane;
+use serde::Serialize;
+
+/// Both estimates for one channel, in the channel's grey levels.
+#[derive(Clone, Copy, Debug, Serialize, PartialEq)]
+pub struct NoiseEstimate {
+    /// Immerkaer over the whole image.
+    pub immerkaer: f64,
+    /// Immerkaer on the calmest 16 x 16 blocks (lower quartile): the one the denoisers use.
+    pub immerkaer_calm_blocks: f64,
+    pub wavelet_mad: f64,
+}
+
+impl NoiseEstimate {
+    /// The estimate the denoisers use. Edges and texture inflate the global estimators (they add
+    /// energy to the high-pass responses measured); the calm-block form looks where detail is least.
+    pub fn chosen(&self) -> f64 {
+        self.immerkaer_calm_blocks
+    }
+}
+
+pub fn estimate(p: &Plane) -> NoiseEstimate {
+    NoiseEstimate {
+        immerkaer: immerkaer::sigma(p),
+        immerkaer_calm_blocks: immerkaer::sigma_calm_blocks(p),
+        wavelet_mad: wavelet::sigma_mad(p),
+    }
+}

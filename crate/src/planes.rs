@@ -1,0 +1,163 @@
+//! The in-memory image: f32 planes in the input's own grey levels (0-255 or 0-65535), plus the
+//! untouched alpha samples and the facts the encoder needs to write the same kind of file back.
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Plane {
+    pub width: usize,
+    pub height: usize,
+    pub data: Vec<f32>,
+}
+
+impl Plane {
+    pub fn new(width: usize, height: usize) -> Self {
+        Plane { width, height, data: vec![0.0; width * height] }
+    }
+
+    pub fn from_fn(width: usize, height: usize, mut f: impl FnMut(usize, usize) -> f32) -> Self {
+        let mut data = Vec::with_capacity(width * height);
+        for y in 0..height {
+            for x in 0..width {
+                data.push(f(x, y));
+            }
+        }
+        Plane { width, height, data }
+    }
+
+    #[inline]
+    pub fn get(&self, x: usize, y: usize) -> f32 {
+        self.data[y * self.width + x]
+    }
+
+    /// Sample with coordinates mirrored at the borders (half-sample symmetric), for filters.
+    #[inline]
+    pub fn get_mirrored(&self, x: isize, y: isize) -> f32 {
+        self.get(mirror(x, self.width), mirror(y, self.height))
+    }
+
+    pub fn len(&self) -> usize {
+        self.data.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.data.is_empty()
+    }
+}
+
+/// Half-sample symmetric index: ... 1 0 | 0 1 2 ... n-1 | n-1 n-2 ...
+#[inline]
+pub fn mirror(i: isize, n: usize) -> usize {
+    let n = n as isize;
+    if n == 1 {
+        return 0;
+    }
+    let period = 2 * n;
+    let mut m = i.rem_euclid(period);
+    if m >= n {
+        m = period - 1 - m;
+    }
+    m as usize
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum BitDepth {
+    Eight,
+    Sixteen,
+}
+
+impl BitDepth {
+    /// The largest grey level, which is also the data range for PSNR and SSIM.
+    pub fn max_value(self) -> f32 {
+        match self {
+            BitDepth::Eight => 255.0,
+            BitDepth::Sixteen => 65535.0,
+        }
+    }
+    pub fn bits(self) -> u32 {
+        match self {
+            BitDepth::Eight => 8,
+            BitDepth::Sixteen => 16,
+        }
+    }
+}
+
+/// Alpha samples exactly as decoded; they pass through every run untouched.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Alpha {
+    Eight(Vec<u8>),
+    Sixteen(Vec<u16>),
+}
+
+#[derive(Clone, Debug, PartialEq)]
+pub struct Image {
+    pub width: usize,
+    pub height: usize,
+    pub depth: BitDepth,
+    /// One plane for grey, three for RGB; values in grey levels of `depth`.
+    pub channels: Vec<Plane>,
+    pub alpha: Option<Alpha>,
+}
+
+impl Image {
+    pub fn max_value(&self) -> f32 {
+        self.depth.max_value()
+    }
+    pub fn is_color(&self) -> bool {
+        self.channels.len() == 3
+    }
+    /// Total channel count as stored in a file (colour channels plus alpha).
+    pub fn stored_channels(&self) -> usize {
+        self.channels.len() + usize::from(self.alpha.is_some())
+    }
+    /// Same image with new colour planes (same size), keeping depth and alpha.
+    pub fn with_channels(&self, channels: Vec<Plane>) -> Image {
+        Image { width: self.width, height: self.height, depth: self.depth, channels, alpha: self.alpha.clone() }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mirror_matches_half_sample_symmetric_convention() {
+        // Convention of scipy.ndimage mode='reflect' (d c b a | a b c d | d c b a).
+        let got: Vec<usize> = (-3..7).map(|i| mirror(i, 4)).collect();
+        assert_eq!(got, vec![2, 1, 0, 0, 1, 2, 3, 3, 2, 1]);
+    }
+}
+
+/// Normalised Gaussian taps of radius ceil(3 s).
+pub fn gaussian_taps(s: f64) -> Vec<f32> {
+    let r = (3.0 * s).ceil() as isize;
+    let mut taps: Vec<f32> = (-r..=r).map(|k| (-(k * k) as f64 / (2.0 * s * s)).exp() as f32).collect();
+    let total: f32 = taps.iter().sum();
+    taps.iter_mut().for_each(|t| *t /= total);
+    taps
+}
+
+/// Factor by which the blur shrinks the std of white noise: sum of the 2-D taps squared, rooted.
+pub fn gaussian_noise_gain(s: f64) -> f64 {
+    if s <= 0.0 {
+        return 1.0;
+    }
+    gaussian_taps(s).iter().map(|t| f64::from(*t).powi(2)).sum::<f64>()
+}
+
+/// Separable Gaussian blur with mirrored borders; radius ceil(3 s). s = 0 returns a copy.
+pub fn gaussian_blur(p: &Plane, s: f64) -> Plane {
+    if s <= 0.0 {
+        return p.clone();
+    }
+    let taps = gaussian_taps(s);
+    let r = (taps.len() / 2) as isize;
+    let pass = |src: &Plane, horizontal: bool| {
+        Plane::from_fn(src.width, src.height, |x, y| {
+            let (x, y) = (x as isize, y as isize);
+            taps.iter()
+                .zip(-r..=r)
+                .map(|(t, k)| t * if horizontal { src.get_mirrored(x + k, y) } else { src.get_mirrored(x, y + k) })
+                .sum()
+        })
+    };
+    pass(&pass(p, true), false)
+}

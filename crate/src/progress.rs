@@ -1,0 +1,44 @@
+//! Progress reporting and cancellation, called by the algorithms at natural checkpoints
+//! (solver iterations, rows of tiles). Faces implement it: a terminal bar, a worker message.
+
+pub trait Progress {
+    /// `fraction` is in [0, 1] for the whole run; `stage` names the current step in plain words.
+    fn report(&self, fraction: f32, stage: &str);
+    /// Polled often; when true the algorithm stops and returns `Error::Cancelled`.
+    fn is_cancelled(&self) -> bool;
+}
+
+/// For callers that want neither progress nor cancellation.
+pub struct NoProgress;
+
+impl Progress for NoProgress {
+    fn report(&self, _fraction: f32, _stage: &str) {}
+    fn is_cancelled(&self) -> bool {
+        false
+    }
+}
+
+/// Maps the progress of one step onto its share [start, start + span] of the whole run.
+pub struct SubProgress<'a> {
+    pub parent: &'a dyn Progress,
+    pub start: f32,
+    pub span: f32,
+}
+
+impl Progress for SubProgress<'_> {
+    fn report(&self, fraction: f32, stage: &str) {
+        self.parent.report(self.start + self.span * fraction.clamp(0.0, 1.0), stage);
+    }
+    fn is_cancelled(&self) -> bool {
+        self.parent.is_cancelled()
+    }
+}
+
+/// Returns `Err(Cancelled)` when the run was cancelled; call at checkpoints.
+pub fn check(p: &dyn Progress) -> crate::Result<()> {
+    if p.is_cancelled() {
+        Err(crate::Error::Cancelled)
+    } else {
+        Ok(())
+    }
+}

@@ -1,0 +1,159 @@
+//! The CLI contract of DESIGN.md section 4: exit codes, one-line errors, JSON fields, no partial
+//! output files, and the output keeping the input's depth and channels.
+
+mod common;
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_patchgraph"))
+}
+
+fn run(args: &[&str]) -> Output {
+    bin().args(args).output().expect("the binary runs")
+}
+
+fn write_png(dir: &Path, name: &str, depth: u32, color: bool) -> PathBuf {
+    use patchgraph::planes::{BitDepth, Image, Plane};
+    let depth = if depth == 16 { BitDepth::Sixteen } else { BitDepth::Eight };
+    let max = depth.max_value();
+    let plane = |k: usize| {
+        Plane::from_fn(64, 48, |x, y| {
+            let v = ((x * 13 + y * 29 + k * 7) % 17) as f32 * 3.0 + if x < 32 { 0.2 } else { 0.6 } * max;
+            v.min(max)
+        })
+    };
+    let channels = if color { vec![plane(0), plane(1), plane(2)] } else { vec![plane(0)] };
+    let img = Image { width: 64, height: 48, depth, channels, alpha: None };
+    let path = dir.join(name);
+    std::fs::write(&path, patchgraph::codec::encode(&img, patchgraph::codec::OutputFormat::Png).unwrap()).unwrap();
+    path
+}
+
+fn files_in(dir: &Path) -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+    v.sort();
+    v
+}
+
+#[test]
+fn every_bad_input_exits_2_with_one_line_and_no_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let good = write_png(d, "good.png", 8, false);
+    let mut truncated = std::fs::read(&good).unwrap();
+    truncated.truncate(truncated.len() * 2 / 3);
+    let mut corrupt = std::fs::read(&good).unwrap();
+    let mid = corrupt.len() / 2;
+    corrupt[mid..mid + 16].iter_mut().for_each(|b| *b ^= 0x5A);
+    let random: Vec<u8> = (0..4096u32).map(|i| (i.wrapping_mul(2654435761) >> 13) as u8).collect();
+    let cases: Vec<(&str, Vec<u8>)> = vec![
+        ("empty.png", vec![]),
+        ("truncated.png", truncated),
+        ("text.png", b"this is a text file, not an image\n".to_vec()),
+        ("corrupt.png", corrupt),
+        ("huge.png", common::png_claiming(100_000, 100_000)),
+        ("zero-width.png", common::png_claiming(0, 10)),
+        ("random.jpg", random),
+    ];
+    let before = files_in(d).len();
+    for (name, bytes) in &cases {
+        let p = d.join(name);
+        std::fs::write(&p, bytes).unwrap();
+        let out = d.join(format!("out-{name}.png"));
+        let o = run(&["denoise", p.to_str().unwrap(), "-o", out.to_str().unwrap()]);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{name}: {err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{name}: {err}");
+        assert!(err.contains(name), "{name}: the message names the file: {err}");
+        assert!(!err.contains("panicked"), "{name}: {err}");
+        assert!(!out.exists(), "{name}: an output file was left behind");
+    }
+    let flag_cases: [&[&str]; 4] = [
+        &["--sigma", "-3"],
+        &["--method", "unknown-method"],
+        &["--sigma", "lots"],
+        &["--method", "patch-graph"],
+    ];
+    for args in flag_cases {
+        let out = d.join("flag-out.png");
+        let mut all = vec!["denoise", good.to_str().unwrap(), "-o", out.to_str().unwrap()];
+        all.extend_from_slice(args);
+        let o = run(&all);
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert_eq!(o.status.code(), Some(2), "{args:?}: {err}");
+        assert_eq!(err.trim_end().lines().count(), 1, "{args:?}: {err}");
+        assert!(!out.exists());
+    }
+    let o = run(&["denoise", good.to_str().unwrap(), "-o", d.join("x.png").to_str().unwrap(), "--sigma", "-3"]);
+    assert_eq!(String::from_utf8_lossy(&o.stderr).trim(), "error: sigma must be between 0 and 65535, got -3");
+    // Only the inputs we wrote are there: no partial or temporary files.
+    assert_eq!(files_in(d).len(), before + cases.len());
+}
+
+#[test]
+fn the_output_never_overwrites_the_input() {
+    let dir = tempfile::tempdir().unwrap();
+    let good = write_png(dir.path(), "good.png", 8, false);
+    let before = std::fs::read(&good).unwrap();
+    let o = run(&["denoise", good.to_str().unwrap(), "-o", good.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(std::fs::read(&good).unwrap(), before);
+}
+
+#[test]
+fn denoise_keeps_depth_and_channels_and_prints_json() {
+    let dir = tempfile::tempdir().unwrap();
+    for (depth, color) in [(8, false), (16, false), (8, true), (16, true)] {
+        let input = write_png(dir.path(), &format!("in{depth}{color}.png"), depth, color);
+        let out = dir.path().join(format!("out{depth}{color}.png"));
+        let o = run(&["denoise", input.to_str().unwrap(), "-o", out.to_str().unwrap(), "--json"]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(v["bit_depth"], depth);
+        assert_eq!(v["channels"], if color { 3 } else { 1 });
+        assert!(v["sigma"].as_f64().unwrap() >= 0.0);
+        let back = patchgraph::codec::decode(&std::fs::read(&out).unwrap(), &Default::default()).unwrap();
+        assert_eq!(back.depth.bits(), depth);
+        assert_eq!(back.channels.len(), if color { 3 } else { 1 });
+    }
+}
+
+#[test]
+fn noise_and_metrics_print_their_json_fields() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = write_png(dir.path(), "a.png", 8, false);
+    let o = run(&["noise", a.to_str().unwrap(), "--json"]);
+    assert!(o.status.success());
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert!(v["sigma"].is_number());
+    let o = run(&["metrics", a.to_str().unwrap(), a.to_str().unwrap(), "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    // Identical images: SSIM is exactly 1 and PSNR is infinite (JSON null).
+    assert_eq!(v["ssim"].as_f64(), Some(1.0));
+    assert!(v["psnr"].is_null());
+    let b = write_png(dir.path(), "b.png", 8, true);
+    let o = run(&["metrics", a.to_str().unwrap(), b.to_str().unwrap(), "--json"]);
+    assert_eq!(o.status.code(), Some(2));
+}
+
+#[test]
+fn a_settings_file_is_read_and_flags_override_it() {
+    let dir = tempfile::tempdir().unwrap();
+    let a = write_png(dir.path(), "a.png", 8, false);
+    let s = dir.path().join("s.json");
+    std::fs::write(&s, r#"{"sigma": 7.5, "pixel_graph": {"filter": "heat"}}"#).unwrap();
+    let out = dir.path().join("o.png");
+    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["sigma"].as_f64(), Some(7.5));
+    assert_eq!(v["settings"]["pixel_graph"]["filter"], "heat");
+    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--sigma", "3", "--json"]);
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["sigma"].as_f64(), Some(3.0));
+    std::fs::write(&s, r#"{"pixel_graph": {"radius": 9}}"#).unwrap();
+    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("pixel_graph.radius must be between 1 and 3, got 9"));
+}

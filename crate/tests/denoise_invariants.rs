@@ -1,0 +1,99 @@
+//! Invariants any denoiser must keep, checked on the pixel-graph method through the pipeline.
+
+use patchgraph::planes::{BitDepth, Image, Plane};
+use patchgraph::settings::{GraphFilter, Settings, Sigma};
+use patchgraph::{pipeline, NoProgress};
+
+fn grey(p: Plane) -> Image {
+    Image { width: p.width, height: p.height, depth: BitDepth::Eight, channels: vec![p], alpha: None }
+}
+
+fn with_sigma(sigma: f64, filter: GraphFilter) -> Settings {
+    let mut s = Settings { sigma: Sigma::Value(sigma), ..Settings::default() };
+    s.pixel_graph.filter = filter;
+    s
+}
+
+/// Deterministic pseudo-noise with std about `sigma` (sum of 12 uniforms, minus 6).
+fn noise(n: usize, sigma: f32, seed: u64) -> Vec<f32> {
+    let mut s = seed;
+    (0..n)
+        .map(|_| {
+            let mut acc = 0.0f32;
+            for _ in 0..12 {
+                s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+                acc += (s >> 40) as f32 / (1u64 << 24) as f32;
+            }
+            sigma * (acc - 6.0)
+        })
+        .collect()
+}
+
+#[test]
+fn a_constant_image_comes_back_constant() {
+    // Invariant: constants are in the Laplacian's null space, so every graph filter keeps them.
+    for filter in [GraphFilter::Tikhonov, GraphFilter::Heat] {
+        let img = grey(Plane::from_fn(40, 30, |_, _| 117.0));
+        let out = pipeline::denoise(&img, &with_sigma(20.0, filter), &NoProgress).unwrap();
+        assert!(out.image.channels[0].data.iter().all(|v| (v - 117.0).abs() < 1e-3));
+    }
+}
+
+#[test]
+fn sigma_zero_returns_the_image_unchanged() {
+    // Invariant: no noise, nothing to remove.
+    let img = grey(Plane::from_fn(33, 21, |x, y| ((x * 7 + y * 13) % 256) as f32));
+    let out = pipeline::denoise(&img, &with_sigma(0.0, GraphFilter::Tikhonov), &NoProgress).unwrap();
+    assert_eq!(out.image, img);
+}
+
+#[test]
+fn an_edge_between_flat_regions_is_not_blurred_across() {
+    // Invariant of the cut graph: no edge joins the two sides of a 100-level step (tau = 2 sigma =
+    // 20), so each side is smoothed on its own and the step keeps its full height.
+    let (w, h) = (48usize, 32usize);
+    let n = noise(w * h, 5.0, 9);
+    let noisy = Plane::from_fn(w, h, |x, y| if x < w / 2 { 60.0 } else { 160.0 } + n[y * w + x]);
+    for filter in [GraphFilter::Tikhonov, GraphFilter::Heat] {
+        let out = pipeline::denoise(&grey(noisy.clone()), &with_sigma(10.0, filter), &NoProgress).unwrap();
+        let d = &out.image.channels[0];
+        let col_mean = |x: usize| (0..h).map(|y| f64::from(d.get(x, y))).sum::<f64>() / h as f64;
+        let step = col_mean(w / 2) - col_mean(w / 2 - 1);
+        assert!(step > 95.0, "{filter:?}: step across the edge shrank to {step}");
+        // And the flat sides really were smoothed (the noise std of 5 went down).
+        let side: Vec<f64> = (0..h).flat_map(|y| (4..w / 2 - 4).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
+        let m = side.iter().sum::<f64>() / side.len() as f64;
+        let sd = (side.iter().map(|v| (v - m).powi(2)).sum::<f64>() / side.len() as f64).sqrt();
+        assert!(sd < 3.0, "{filter:?}: flat side std {sd}");
+    }
+}
+
+#[test]
+fn the_input_image_is_not_altered_and_alpha_passes_through() {
+    // Invariant: the run reads the image; alpha samples come back byte for byte.
+    let (w, h) = (20usize, 16usize);
+    let n = noise(w * h * 3, 8.0, 4);
+    let ch = |k: usize| Plane::from_fn(w, h, |x, y| 100.0 + 20.0 * k as f32 + n[k * w * h + y * w + x]);
+    let alpha: Vec<u16> = (0..w * h).map(|i| (i * 211 % 65536) as u16).collect();
+    let img = Image {
+        width: w,
+        height: h,
+        depth: BitDepth::Sixteen,
+        channels: vec![ch(0), ch(1), ch(2)],
+        alpha: Some(patchgraph::planes::Alpha::Sixteen(alpha)),
+    };
+    let copy = img.clone();
+    let out = pipeline::denoise(&img, &Settings::default(), &NoProgress).unwrap();
+    assert_eq!(img, copy);
+    assert_eq!(out.image.alpha, img.alpha);
+    assert_eq!(out.image.channels.len(), 3);
+}
+
+#[test]
+fn the_patch_graph_method_is_refused_until_it_exists() {
+    let mut s = Settings::default();
+    s.method = patchgraph::settings::Method::PatchGraph;
+    let img = grey(Plane::from_fn(16, 16, |_, _| 1.0));
+    let e = pipeline::denoise(&img, &s, &NoProgress).err().unwrap();
+    assert!(e.to_string().contains("patch-graph"));
+}

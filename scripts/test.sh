@@ -1,0 +1,17 @@
+#!/usr/bin/env bash
+# Installs what the tests need (wasm32 target, Python reference libraries) and runs every test.
+source "$(dirname "$0")/common.sh"
+ensure_wasm_target
+ensure_python
+"$ROOT/scripts/build.sh"
+say "Rust tests (unit, closed forms, invariants, CLI contract)"
+cargo test --release --locked -p patchgraph
+say "sample images are what the generator makes"
+tmp="$(mktemp -d)"; trap 'rm -rf "$tmp"' EXIT
+"$ROOT/target/release/make-samples" "$tmp" >/dev/null
+for f in sample-images/*.png; do
+  cmp -s "$f" "$tmp/$(basename "$f")" || { echo "$f differs from the generator's output: run target/release/make-samples"; exit 1; }
+done
+echo "sample images match"
+say "cross-checks against reference libraries (pytest)"
+PATCHGRAPH_BIN="$ROOT/target/release/patchgraph" "$VENV/bin/python" -m pytest -q tests
