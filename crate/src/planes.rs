@@ -150,14 +150,28 @@ pub fn gaussian_blur(p: &Plane, s: f64) -> Plane {
     }
     let taps = gaussian_taps(s);
     let r = (taps.len() / 2) as isize;
-    let pass = |src: &Plane, horizontal: bool| {
-        Plane::from_fn(src.width, src.height, |x, y| {
-            let (x, y) = (x as isize, y as isize);
-            taps.iter()
-                .zip(-r..=r)
-                .map(|(t, k)| t * if horizontal { src.get_mirrored(x + k, y) } else { src.get_mirrored(x, y + k) })
-                .sum()
-        })
-    };
-    pass(&pass(p, true), false)
+    let (w, h) = (p.width, p.height);
+    // Rows: copy each row into a mirrored, padded line, then slide the taps over it.
+    let mut tmp = Plane::new(w, h);
+    let mut line = vec![0.0f32; w + 2 * r as usize];
+    for y in 0..h {
+        for (i, v) in line.iter_mut().enumerate() {
+            *v = p.data[y * w + mirror(i as isize - r, w)];
+        }
+        for x in 0..w {
+            tmp.data[y * w + x] = taps.iter().zip(&line[x..]).map(|(t, v)| t * v).sum();
+        }
+    }
+    // Columns: accumulate whole mirrored rows, so the inner loop runs along memory.
+    let mut out = Plane::new(w, h);
+    for y in 0..h {
+        let dst = &mut out.data[y * w..(y + 1) * w];
+        for (k, t) in taps.iter().enumerate() {
+            let sy = mirror(y as isize + k as isize - r, h);
+            for (o, v) in dst.iter_mut().zip(&tmp.data[sy * w..(sy + 1) * w]) {
+                *o += t * v;
+            }
+        }
+    }
+    out
 }

@@ -53,25 +53,39 @@ pub fn half_offsets(radius: usize) -> Vec<(isize, isize)> {
     v
 }
 
-/// Box sum of `src` over a (2pr+1)^2 window with mirrored borders, divided by the window area.
+/// Mean of `src` over a (2pr+1)^2 window, borders clamped; separable running sums, O(1) per pixel.
 fn box_mean(src: &[f32], w: usize, h: usize, pr: usize) -> Vec<f32> {
     if pr == 0 {
         return src.to_vec();
     }
     let r = pr as isize;
     let area = ((2 * pr + 1) * (2 * pr + 1)) as f32;
-    let p = Plane { width: w, height: h, data: src.to_vec() };
+    let clamp = |i: isize, n: usize| i.clamp(0, n as isize - 1) as usize;
     let mut rows = vec![0.0f32; w * h];
     for y in 0..h {
-        for x in 0..w {
-            rows[y * w + x] = (-r..=r).map(|d| p.get_mirrored(x as isize + d, y as isize)).sum();
+        let line = &src[y * w..(y + 1) * w];
+        let mut acc: f32 = (-r..=r).map(|d| line[clamp(d, w)]).sum();
+        rows[y * w] = acc;
+        for x in 1..w {
+            acc += line[clamp(x as isize + r, w)] - line[clamp(x as isize - 1 - r, w)];
+            rows[y * w + x] = acc;
         }
     }
-    let q = Plane { width: w, height: h, data: rows };
     let mut out = vec![0.0f32; w * h];
+    let mut acc: Vec<f32> = vec![0.0; w];
+    for d in -r..=r {
+        let row = clamp(d, h) * w;
+        acc.iter_mut().zip(&rows[row..row + w]).for_each(|(a, v)| *a += v);
+    }
     for y in 0..h {
+        if y > 0 {
+            let (add, sub) = (clamp(y as isize + r, h) * w, clamp(y as isize - 1 - r, h) * w);
+            for x in 0..w {
+                acc[x] += rows[add + x] - rows[sub + x];
+            }
+        }
         for x in 0..w {
-            out[y * w + x] = (-r..=r).map(|d| q.get_mirrored(x as isize, y as isize + d)).sum::<f32>() / area;
+            out[y * w + x] = acc[x] / area;
         }
     }
     out
@@ -81,19 +95,30 @@ impl GridGraph {
     pub fn build(guide: &Plane, p: &GridParams) -> GridGraph {
         let (w, h) = (guide.width, guide.height);
         let offsets = half_offsets(p.radius);
-        let inv2h2 = if p.h > 0.0 { 1.0 / (2.0 * p.h * p.h) } else { f64::INFINITY };
+        let inv2h2 = if p.h > 0.0 { (1.0 / (2.0 * p.h * p.h)) as f32 } else { f32::INFINITY };
         let tau2 = (p.tau * p.tau) as f32;
         let offset = (2.0 * p.guide_noise * p.guide_noise) as f32;
         let mut degree = vec![0.0f64; w * h];
         let mut cuts = vec![0u8; w * h];
         let mut weights = Vec::with_capacity(offsets.len());
         for &(dx, dy) in &offsets {
-            // Squared guide difference to the neighbour at this offset (mirrored outside).
+            // Squared guide difference to the neighbour at this offset (clamped outside the image);
+            // the columns whose neighbour is inside run as one straight, vectorisable loop.
             let mut diff2 = vec![0.0f32; w * h];
+            let (x0, x1) = ((-dx).max(0) as usize, (w as isize - dx.max(0)).max(0) as usize);
             for y in 0..h {
-                for x in 0..w {
-                    let d = guide.get(x, y) - guide.get_mirrored(x as isize + dx, y as isize + dy);
-                    diff2[y * w + x] = d * d;
+                let ny = (y as isize + dy).clamp(0, h as isize - 1) as usize;
+                let (row, nrow) = (&guide.data[y * w..(y + 1) * w], &guide.data[ny * w..(ny + 1) * w]);
+                let out = &mut diff2[y * w..(y + 1) * w];
+                for x in (0..x0.min(w)).chain(x1.max(x0).min(w)..w) {
+                    let nx = (x as isize + dx).clamp(0, w as isize - 1) as usize;
+                    out[x] = (row[x] - nrow[nx]).powi(2);
+                }
+                if x1 > x0 {
+                    let shifted = &nrow[(x0 as isize + dx) as usize..(x1 as isize + dx) as usize];
+                    for ((o, a), b) in out[x0..x1].iter_mut().zip(&row[x0..x1]).zip(shifted) {
+                        *o = (a - b) * (a - b);
+                    }
                 }
             }
             let mut dist2 = box_mean(&diff2, w, h, p.patch_radius);
@@ -116,8 +141,7 @@ impl GridGraph {
                         cuts[j] = cuts[j].saturating_add(1);
                         continue;
                     }
-                    let wt = (-f64::from(dist2[i]) * inv2h2).exp();
-                    wk[i] = wt as f32;
+                    wk[i] = (-dist2[i] * inv2h2).exp();
                     degree[i] += f64::from(wk[i]);
                     degree[j] += f64::from(wk[i]);
                 }
@@ -159,22 +183,27 @@ impl LinearOperator for GridGraph {
     }
 
     fn apply(&self, x: &[f64], y: &mut [f64]) {
-        for i in 0..x.len() {
-            y[i] = self.degree[i] * x[i];
+        for ((yi, xi), d) in y.iter_mut().zip(x).zip(&self.degree) {
+            *yi = d * xi;
         }
-        let n = x.len() as isize;
+        let n = x.len();
         let w = self.width as isize;
         for (k, &(dx, dy)) in self.offsets.iter().enumerate() {
+            // Every present edge runs from i to a later pixel j = i + delta; an offset whose delta
+            // is not positive (images narrower than the radius) has no edges at all.
             let delta = dy * w + dx;
-            let wk = &self.weights[k];
-            // Pixels whose neighbour index is in range; absent edges carry weight 0.
-            let lo = (-delta).max(0) as usize;
-            let hi = (n - delta.max(0)) as usize;
-            for i in lo..hi {
-                let wt = f64::from(wk[i]);
-                let j = (i as isize + delta) as usize;
-                y[i] -= wt * x[j];
-                y[j] -= wt * x[i];
+            if delta <= 0 || delta as usize >= n {
+                continue;
+            }
+            let d = delta as usize;
+            let wk = &self.weights[k][..n - d];
+            // Gather form over contiguous slices, so the loops vectorise: y_i -= w_ij x_j ...
+            for ((yi, wi), xj) in y[..n - d].iter_mut().zip(wk).zip(&x[d..]) {
+                *yi -= f64::from(*wi) * xj;
+            }
+            // ... and y_j -= w_ij x_i.
+            for ((yj, wi), xi) in y[d..].iter_mut().zip(wk).zip(&x[..n - d]) {
+                *yj -= f64::from(*wi) * xi;
             }
         }
     }

@@ -22,6 +22,10 @@ pub fn smoothing_amount(filter: GraphFilter, sigma8: f64, strength: f64) -> f64 
     }
 }
 
+/// A relative residual of 1e-3 leaves errors of about 0.1 grey level on 8-bit data, far below
+/// the noise; tighter solves cost iterations without changing the rounded output measurably.
+const CG: cg::CgOptions = cg::CgOptions { tolerance: 1e-3, max_iterations: 500 };
+
 pub fn denoise(
     planes: &[Plane],
     sigma: f64,
@@ -58,8 +62,9 @@ pub fn denoise(
             let x = match s.filter {
                 GraphFilter::Tikhonov => {
                     let a = Shifted { op: &graph, gamma: amount };
-                    let mut x = y.clone();
-                    let report = cg::solve(&a, &y, &mut x, cg::CgOptions::default(), &sub)?;
+                    // Start from the previous pass's answer: the systems differ only in the graph.
+                    let mut x: Vec<f64> = out[c].data.iter().map(|v| f64::from(*v)).collect();
+                    let report = cg::solve(&a, &y, &mut x, CG, &sub)?;
                     work += report.iterations;
                     x
                 }
