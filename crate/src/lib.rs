@@ -11,6 +11,7 @@ pub mod graph;
 pub mod methods;
 pub mod metrics;
 pub mod noise;
+pub mod patch;
 pub mod pipeline;
 pub mod planes;
 pub mod progress;

@@ -3,7 +3,7 @@
 
 use crate::codec::{self, DecodeLimits, OutputFormat};
 use crate::color;
-use crate::error::{Error, Result};
+use crate::error::Result;
 use crate::methods::{self, MethodOutput};
 use crate::metrics::{self, ResidualStats};
 use crate::noise::{self, vst, NoiseEstimate};
@@ -46,11 +46,6 @@ pub fn estimate_noise(img: &Image) -> Vec<NoiseEstimate> {
 
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
     settings.validate()?;
-    if settings.method == Method::PatchGraph {
-        return Err(Error::BadSettings(
-            "the patch-graph method is not available in this version yet; use --method pixel-graph".into(),
-        ));
-    }
     let gain = settings.poisson_gain;
     let working = match settings.noise {
         NoiseModel::Gaussian => img.channels.clone(),
@@ -69,8 +64,10 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
     progress.report(0.02, "preparing");
     let planes_in = if working.len() == 3 { color::to_opponent(&working) } else { working.clone() };
     let sub = SubProgress { parent: progress, start: 0.05, span: 0.9 };
-    let MethodOutput { planes, cut_map, work_units } =
-        methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?;
+    let MethodOutput { planes, cut_map, work_units } = match settings.method {
+        Method::PixelGraph => methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?,
+        Method::PatchGraph => methods::patch_graph::denoise(&planes_in, sigma, range, &settings.patch_graph, &sub)?,
+    };
     let planes = if planes.len() == 3 { color::from_opponent(&planes) } else { planes };
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     let out_planes = match settings.noise {

@@ -1,7 +1,8 @@
 //! Progress reporting and cancellation, called by the algorithms at natural checkpoints
 //! (solver iterations, rows of tiles). Faces implement it: a terminal bar, a worker message.
 
-pub trait Progress {
+/// `Sync` so that tiles running on several threads can report through one reporter.
+pub trait Progress: Sync {
     /// `fraction` is in [0, 1] for the whole run; `stage` names the current step in plain words.
     fn report(&self, fraction: f32, stage: &str);
     /// Polled often; when true the algorithm stops and returns `Error::Cancelled`.

@@ -94,6 +94,42 @@ impl Default for PixelGraphSettings {
 
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
+pub struct PatchGraphSettings {
+    /// Patch side in pixels; 0 chooses by noise level (8, or 12 above sigma 40 on the 8-bit scale).
+    pub patch_size: u32,
+    /// Distance between reference patches.
+    pub step: u32,
+    /// Half-size of the search window for similar patches.
+    pub search_radius: u32,
+    /// Most patches per group in the hard-thresholding stage.
+    pub group_size_hard: u32,
+    /// Most patches per group in the Wiener stage.
+    pub group_size_wiener: u32,
+    /// Hard threshold as a multiple of sigma.
+    pub threshold: f64,
+    /// Patches less similar than this SSIM to the reference are not grouped.
+    pub min_similarity: f64,
+    /// Side of a tile of reference positions, in pixels (memory per tile; results do not depend on it).
+    pub tile_size: u32,
+}
+
+impl Default for PatchGraphSettings {
+    fn default() -> Self {
+        PatchGraphSettings {
+            patch_size: 0,
+            step: 3,
+            search_radius: 12,
+            group_size_hard: 16,
+            group_size_wiener: 16,
+            threshold: 2.7,
+            min_similarity: 0.0,
+            tile_size: 64,
+        }
+    }
+}
+
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
 pub struct Settings {
     pub version: u32,
     pub method: Method,
@@ -102,17 +138,19 @@ pub struct Settings {
     /// Grey levels per photon for the Poisson model.
     pub poisson_gain: f64,
     pub pixel_graph: PixelGraphSettings,
+    pub patch_graph: PatchGraphSettings,
 }
 
 impl Default for Settings {
     fn default() -> Self {
         Settings {
             version: SETTINGS_VERSION,
-            method: Method::PixelGraph,
+            method: Method::PatchGraph,
             sigma: Sigma::AUTO,
             noise: NoiseModel::Gaussian,
             poisson_gain: 1.0,
             pixel_graph: PixelGraphSettings::default(),
+            patch_graph: PatchGraphSettings::default(),
         }
     }
 }
@@ -157,6 +195,17 @@ impl Settings {
         range("pixel_graph.patch_radius", f64::from(p.patch_radius), 0.0, 3.0)?;
         range("pixel_graph.passes", f64::from(p.passes), 1.0, 5.0)?;
         range("pixel_graph.guide_blur", p.guide_blur, 0.0, 5.0)?;
+        let q = &self.patch_graph;
+        if q.patch_size != 0 {
+            range("patch_graph.patch_size", f64::from(q.patch_size), 4.0, 16.0)?;
+        }
+        range("patch_graph.step", f64::from(q.step), 1.0, 8.0)?;
+        range("patch_graph.search_radius", f64::from(q.search_radius), 2.0, 24.0)?;
+        range("patch_graph.group_size_hard", f64::from(q.group_size_hard), 1.0, 32.0)?;
+        range("patch_graph.group_size_wiener", f64::from(q.group_size_wiener), 1.0, 32.0)?;
+        range("patch_graph.threshold", q.threshold, 0.0, 10.0)?;
+        range("patch_graph.min_similarity", q.min_similarity, -1.0, 1.0)?;
+        range("patch_graph.tile_size", f64::from(q.tile_size), 16.0, 4096.0)?;
         Ok(())
     }
 }

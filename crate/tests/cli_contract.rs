@@ -74,7 +74,7 @@ fn every_bad_input_exits_2_with_one_line_and_no_output() {
         &["--sigma", "-3"],
         &["--method", "unknown-method"],
         &["--sigma", "lots"],
-        &["--method", "patch-graph"],
+        &["--noise", "speckle"],
     ];
     for args in flag_cases {
         let out = d.join("flag-out.png");

@@ -1,7 +1,7 @@
 //! Invariants any denoiser must keep, checked on the pixel-graph method through the pipeline.
 
 use patchgraph::planes::{BitDepth, Image, Plane};
-use patchgraph::settings::{GraphFilter, Settings, Sigma};
+use patchgraph::settings::{GraphFilter, Method, Settings, Sigma};
 use patchgraph::{pipeline, NoProgress};
 
 fn grey(p: Plane) -> Image {
@@ -9,7 +9,7 @@ fn grey(p: Plane) -> Image {
 }
 
 fn with_sigma(sigma: f64, filter: GraphFilter) -> Settings {
-    let mut s = Settings { sigma: Sigma::Value(sigma), ..Settings::default() };
+    let mut s = Settings { sigma: Sigma::Value(sigma), method: Method::PixelGraph, ..Settings::default() };
     s.pixel_graph.filter = filter;
     s
 }
@@ -89,11 +89,61 @@ fn the_input_image_is_not_altered_and_alpha_passes_through() {
     assert_eq!(out.image.channels.len(), 3);
 }
 
+fn patch(sigma: f64, tile: u32) -> Settings {
+    let mut s = Settings { sigma: Sigma::Value(sigma), method: Method::PatchGraph, ..Settings::default() };
+    s.patch_graph.tile_size = tile;
+    s
+}
+
 #[test]
-fn the_patch_graph_method_is_refused_until_it_exists() {
-    let mut s = Settings::default();
-    s.method = patchgraph::settings::Method::PatchGraph;
-    let img = grey(Plane::from_fn(16, 16, |_, _| 1.0));
-    let e = pipeline::denoise(&img, &s, &NoProgress).err().unwrap();
-    assert!(e.to_string().contains("patch-graph"));
+fn patch_graph_keeps_constants_and_sigma_zero() {
+    // Invariants: a constant image has all its energy in the kept DC coefficient and comes back
+    // constant; sigma 0 returns the input as it is.
+    let img = grey(Plane::from_fn(40, 36, |_, _| 88.0));
+    let out = pipeline::denoise(&img, &patch(15.0, 64), &NoProgress).unwrap();
+    // (Tolerance 0.01: the Wiener gain of the DC coefficient, b^2 / (b^2 + sigma^2), is 1 - 3e-5 here.)
+    assert!(out.image.channels[0].data.iter().all(|v| (v - 88.0).abs() < 1e-2));
+    let img = grey(Plane::from_fn(33, 21, |x, y| ((x * 7 + y * 13) % 256) as f32));
+    assert_eq!(pipeline::denoise(&img, &patch(0.0, 64), &NoProgress).unwrap().image, img);
+}
+
+#[test]
+fn patch_graph_tiles_give_the_one_pass_result() {
+    // Invariant of the tiled design: accumulators of any tiling sum to the same output, up to
+    // float rounding (well under 0.01 grey level).
+    let (w, h) = (70usize, 53usize);
+    let n = noise(w * h * 3, 12.0, 21);
+    let ch = |k: usize| {
+        Plane::from_fn(w, h, |x, y| if (x / 9 + y / 7) % 2 == 0 { 80.0 } else { 150.0 } + 10.0 * k as f32 + n[k * w * h + y * w + x])
+    };
+    let img = Image { width: w, height: h, depth: BitDepth::Eight, channels: vec![ch(0), ch(1), ch(2)], alpha: None };
+    let one = pipeline::denoise(&img, &patch(12.0, 4096), &NoProgress).unwrap();
+    let tiled = pipeline::denoise(&img, &patch(12.0, 16), &NoProgress).unwrap();
+    for (a, b) in one.image.channels.iter().zip(&tiled.image.channels) {
+        let worst = a.data.iter().zip(&b.data).map(|(p, q)| (p - q).abs()).fold(0.0f32, f32::max);
+        assert!(worst < 1e-2, "tiles changed the result by {worst}");
+    }
+}
+
+#[test]
+fn patch_graph_removes_noise_and_keeps_the_step() {
+    // The step edge of the pixel-graph test: 100 levels must survive, the flat sides get smoother.
+    let (w, h) = (48usize, 40usize);
+    let n = noise(w * h, 10.0, 5);
+    let noisy = Plane::from_fn(w, h, |x, y| if x < w / 2 { 60.0 } else { 160.0 } + n[y * w + x]);
+    let out = pipeline::denoise(&grey(noisy), &patch(10.0, 64), &NoProgress).unwrap();
+    let d = &out.image.channels[0];
+    let col_mean = |x: usize| (0..h).map(|y| f64::from(d.get(x, y))).sum::<f64>() / h as f64;
+    assert!(col_mean(w / 2) - col_mean(w / 2 - 1) > 95.0);
+    let side: Vec<f64> = (0..h).flat_map(|y| (2..w / 2 - 2).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
+    let m = side.iter().sum::<f64>() / side.len() as f64;
+    let sd = (side.iter().map(|v| (v - m).powi(2)).sum::<f64>() / side.len() as f64).sqrt();
+    assert!(sd < 4.0, "flat side std {sd} (noise was 10)");
+}
+
+#[test]
+fn images_smaller_than_a_patch_get_a_clear_error() {
+    let img = grey(Plane::from_fn(5, 5, |_, _| 1.0));
+    let e = pipeline::denoise(&img, &patch(10.0, 64), &NoProgress).err().unwrap();
+    assert!(e.to_string().contains("pixel-graph"), "{e}");
 }

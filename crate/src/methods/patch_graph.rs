@@ -1,0 +1,335 @@
+//! The collaborative method: groups of similar patches (SSIM block matching) filtered together in
+//! a 3-D transform, the 2-D DCT within each patch and the graph Fourier basis of the group's
+//! similarity graph across patches. Two stages, as in block-matching collaborative filtering
+//! (K. Dabov, A. Foi, V. Katkovnik and K. Egiazarian, IEEE TIP 2007): hard thresholding for a basic
+//! estimate, then matching again on it and empirical Wiener shrinkage.
+//!
+//! References are processed in tiles; each tile reads its crop of the image (the references plus
+//! the search radius and a patch) and returns an accumulator that is summed into the result, so any
+//! tiling gives the same output up to float rounding, and tiles can run in parallel.
+
+use super::MethodOutput;
+use crate::error::{Error, Result};
+use crate::patch::aggregate::{kaiser_window, Accumulator};
+use crate::patch::matching::{match_groups, patch_ssim, MatchParams};
+use crate::patch::transform::{axpy, dct2, dct_matrix, graph_fourier_basis, idct2};
+use crate::patch::Group;
+use crate::planes::Plane;
+use crate::progress::{check, Progress, SubProgress};
+use crate::settings::PatchGraphSettings;
+
+/// Parameters of one run after the noise-dependent profile is applied.
+#[derive(Clone, Copy, Debug)]
+pub struct Profile {
+    pub patch: usize,
+    pub step: usize,
+    pub search: usize,
+    pub group1: usize,
+    pub group2: usize,
+    pub lambda: f64,
+    pub min_similarity: f64,
+    pub beta: f64,
+    pub tile: usize,
+}
+
+/// Patch size 0 means "by noise level": 8, or 12 above sigma 40 on the 8-bit scale, where larger
+/// patches match more reliably (the same switch as Dabov et al.'s high-noise profile).
+pub fn profile(s: &PatchGraphSettings, sigma8: f64) -> Profile {
+    let patch = if s.patch_size == 0 { if sigma8 > 40.0 { 12 } else { 8 } } else { s.patch_size as usize };
+    Profile {
+        patch,
+        step: s.step as usize,
+        search: s.search_radius as usize,
+        group1: s.group_size_hard as usize,
+        group2: s.group_size_wiener as usize,
+        lambda: s.threshold,
+        min_similarity: s.min_similarity,
+        beta: 2.0,
+        tile: s.tile_size as usize,
+    }
+}
+
+/// Reference corners along one axis: every `step`, plus the last position so borders are covered.
+fn ref_axis(n: usize, k: usize, step: usize) -> Vec<usize> {
+    let last = n - k;
+    let mut v: Vec<usize> = (0..=last).step_by(step.max(1)).collect();
+    if v.last() != Some(&last) {
+        v.push(last);
+    }
+    v
+}
+
+/// Copies the rectangle [x0, x0 + w) x [y0, y0 + h) of a plane.
+fn crop(p: &Plane, x0: usize, y0: usize, w: usize, h: usize) -> Plane {
+    let mut data = Vec::with_capacity(w * h);
+    for y in y0..y0 + h {
+        data.extend_from_slice(&p.data[y * p.width + x0..y * p.width + x0 + w]);
+    }
+    Plane { width: w, height: h, data }
+}
+
+/// Low-frequency DCT coefficients (u + v <= 3) used for the group graph's weights: the coarse
+/// structure of a patch, which noise disturbs least.
+fn low_freq_indices(k: usize) -> Vec<usize> {
+    (0..k * k).filter(|&i| i / k + i % k <= 3).collect()
+}
+
+/// Weights of the group graph: SSIM between the patches' low-frequency parts, clamped at 0.
+fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise_var: f64) -> Vec<f64> {
+    let coeffs: Vec<&[f32]> = flat.chunks(k * k).collect();
+    let n = coeffs.len();
+    let kk = (k * k) as f64;
+    let c1 = (0.01 * range).powi(2);
+    let c2 = (0.03 * range).powi(2);
+    // Mean from the DC coefficient (sum / k); variance and covariance from the other low frequencies.
+    let nv = noise_var * (lf.len() - 1) as f64 / kk;
+    let mean: Vec<f64> = coeffs.iter().map(|c| f64::from(c[0]) / k as f64).collect();
+    let var: Vec<f64> =
+        coeffs.iter().map(|c| (lf[1..].iter().map(|&i| f64::from(c[i]).powi(2)).sum::<f64>() / kk - nv).max(0.0)).collect();
+    let mut w = vec![0.0; n * n];
+    for i in 0..n {
+        for j in i + 1..n {
+            let cov = lf[1..].iter().map(|&f| f64::from(coeffs[i][f]) * f64::from(coeffs[j][f])).sum::<f64>() / kk;
+            let s = patch_ssim(mean[i], mean[j], var[i], var[j], cov, c1, c2).max(0.0);
+            w[i * n + j] = s;
+            w[j * n + i] = s;
+        }
+    }
+    w
+}
+
+/// Shared, read-only data of one stage.
+struct Stage<'a> {
+    noisy: &'a [Plane],
+    /// The basic estimate (stage 2) or None (stage 1).
+    basic: Option<&'a [Plane]>,
+    sigma: f64,
+    range: f64,
+    prof: Profile,
+    dct: Vec<f32>,
+    window: Vec<f32>,
+    lf: Vec<usize>,
+}
+
+impl Stage<'_> {
+    fn group_size(&self) -> usize {
+        if self.basic.is_some() { self.prof.group2 } else { self.prof.group1 }
+    }
+
+    /// Processes the references of one tile; returns its accumulator (crop coordinates inside).
+    fn tile(&self, refs: &[(usize, usize)], progress: &dyn Progress) -> Result<Accumulator> {
+        let (w, h) = (self.noisy[0].width, self.noisy[0].height);
+        let k = self.prof.patch;
+        let s = self.prof.search;
+        let (rx0, ry0) = refs.iter().fold((usize::MAX, usize::MAX), |a, r| (a.0.min(r.0), a.1.min(r.1)));
+        let (rx1, ry1) = refs.iter().fold((0, 0), |a, r| (a.0.max(r.0), a.1.max(r.1)));
+        let (x0, y0) = (rx0.saturating_sub(s), ry0.saturating_sub(s));
+        let (x1, y1) = ((rx1 + s + k).min(w), (ry1 + s + k).min(h));
+        let (cw, ch) = (x1 - x0, y1 - y0);
+        let noisy: Vec<Plane> = self.noisy.iter().map(|p| crop(p, x0, y0, cw, ch)).collect();
+        let basic: Option<Vec<Plane>> = self.basic.map(|b| b.iter().map(|p| crop(p, x0, y0, cw, ch)).collect());
+        let guide = basic.as_ref().map_or(&noisy[0], |b| &b[0]);
+        let local: Vec<(usize, usize)> = refs.iter().map(|&(x, y)| (x - x0, y - y0)).collect();
+        let mp = MatchParams {
+            patch: k,
+            search: s,
+            max_group: self.group_size(),
+            min_similarity: self.prof.min_similarity,
+            range: self.range,
+            noise_var: if basic.is_some() { 0.0 } else { self.sigma * self.sigma },
+        };
+        let groups = match_groups(guide, &local, &mp, &SubProgress { parent: progress, start: 0.0, span: 0.5 })?;
+        let mut acc = Accumulator::new(x0, y0, cw, ch, noisy.len());
+        for (g, group) in groups.iter().enumerate() {
+            if g % 64 == 0 {
+                check(progress)?;
+                progress.report(0.5 + 0.5 * g as f32 / groups.len() as f32, "filtering groups");
+            }
+            self.filter_group(group, &noisy, basic.as_deref(), &mut acc);
+        }
+        Ok(acc)
+    }
+
+    /// 2-D DCT of every patch of the group in one plane, patch i at [i k^2, (i+1) k^2).
+    fn patch_coeffs(&self, plane: &Plane, group: &Group) -> Vec<f32> {
+        let k = self.prof.patch;
+        let kk = k * k;
+        let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
+        let mut out = vec![0.0f32; group.len() * kk];
+        for (i, &(x, y)) in group.positions.iter().enumerate() {
+            for r in 0..k {
+                buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
+            }
+            dct2(&self.dct, k, &buf, &mut out[i * kk..(i + 1) * kk], &mut tmp);
+        }
+        out
+    }
+
+    fn filter_group(&self, group: &Group, noisy: &[Plane], basic: Option<&[Plane]>, acc: &mut Accumulator) {
+        let k = self.prof.patch;
+        let n = group.len();
+        let kk = k * k;
+        let sigma2 = self.sigma * self.sigma;
+        let noisy_c: Vec<Vec<f32>> = noisy.iter().map(|p| self.patch_coeffs(p, group)).collect();
+        let basic_c: Option<Vec<Vec<f32>>> = basic.map(|b| b.iter().map(|p| self.patch_coeffs(p, group)).collect());
+        // The group graph comes from the cleanest luminance available.
+        let (graph_src, nv) = match &basic_c {
+            Some(b) => (&b[0], 0.0),
+            None => (&noisy_c[0], sigma2),
+        };
+        // u[i n + j]: entry i of the j-th graph Fourier vector.
+        let u: Vec<f32> = if n > 1 {
+            let m = graph_fourier_basis(&group_weights(graph_src, k, &self.lf, self.range, nv), n);
+            (0..n * n).map(|idx| m[(idx / n, idx % n)] as f32).collect()
+        } else {
+            vec![1.0]
+        };
+        // Forward across the group: T_j = sum_i u_ij C_i (rows of k^2 coefficients).
+        let across = |c: &[f32]| -> Vec<f32> {
+            let mut t = vec![0.0f32; n * kk];
+            for i in 0..n {
+                for j in 0..n {
+                    axpy(&mut t[j * kk..(j + 1) * kk], u[i * n + j], &c[i * kk..(i + 1) * kk]);
+                }
+            }
+            t
+        };
+        let mut filtered: Vec<Vec<f32>> = Vec::with_capacity(noisy.len());
+        let mut weight_den = 0.0f64;
+        for ch in 0..noisy.len() {
+            let mut t = across(&noisy_c[ch]);
+            match &basic_c {
+                None => {
+                    let thr = (self.prof.lambda * self.sigma) as f32;
+                    let mut kept = 0usize;
+                    for (idx, v) in t.iter_mut().enumerate() {
+                        // The group's mean patch DC (index 0) always stays.
+                        if idx == 0 || v.abs() >= thr {
+                            kept += 1;
+                        } else {
+                            *v = 0.0;
+                        }
+                    }
+                    weight_den += kept as f64;
+                }
+                Some(b) => {
+                    let tb = across(&b[ch]);
+                    let s2 = sigma2 as f32;
+                    let mut gsum = 0.0f32;
+                    for (v, vb) in t.iter_mut().zip(&tb) {
+                        let g = vb * vb / (vb * vb + s2);
+                        *v *= g;
+                        gsum += g * g;
+                    }
+                    weight_den += f64::from(gsum);
+                }
+            }
+            filtered.push(t);
+        }
+        // Stage 1: 1 / (sigma^2 N_nonzero); stage 2: 1 / (sigma^2 sum g^2).
+        let weight = (1.0 / (sigma2 * weight_den.max(1e-12))) as f32;
+        // Inverse across the group (C_i = sum_j u_ij T_j), the inverse 2-D DCT, then aggregation.
+        let (mut coeff, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
+        let mut patch = vec![vec![0.0f32; kk]; noisy.len()];
+        for (i, &(x, y)) in group.positions.iter().enumerate() {
+            for (ch, t) in filtered.iter().enumerate() {
+                coeff.iter_mut().for_each(|v| *v = 0.0);
+                for j in 0..n {
+                    axpy(&mut coeff, u[i * n + j], &t[j * kk..(j + 1) * kk]);
+                }
+                idct2(&self.dct, k, &coeff, &mut patch[ch], &mut tmp);
+            }
+            let refs: Vec<&[f32]> = patch.iter().map(|p| p.as_slice()).collect();
+            acc.add(x, y, k, &refs, &self.window, weight);
+        }
+    }
+}
+
+/// Runs the tiles of one stage (in parallel natively) and returns the aggregated planes.
+fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
+    let (w, h) = (stage.noisy[0].width, stage.noisy[0].height);
+    let k = stage.prof.patch;
+    let xs = ref_axis(w, k, stage.prof.step);
+    let ys = ref_axis(h, k, stage.prof.step);
+    let t = stage.prof.tile.max(1);
+    let mut tiles: Vec<Vec<(usize, usize)>> = Vec::new();
+    for ty in (0..h).step_by(t) {
+        for tx in (0..w).step_by(t) {
+            let refs: Vec<(usize, usize)> = ys
+                .iter()
+                .filter(|&&y| y >= ty && y < ty + t)
+                .flat_map(|&y| xs.iter().filter(|&&x| x >= tx && x < tx + t).map(move |&x| (x, y)))
+                .collect();
+            if !refs.is_empty() {
+                tiles.push(refs);
+            }
+        }
+    }
+    let done = std::sync::atomic::AtomicUsize::new(0);
+    let total = tiles.len();
+    let one = |refs: &Vec<(usize, usize)>| -> Result<Accumulator> {
+        let acc = stage.tile(refs, &crate::progress::NoProgress)?;
+        let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+        check(progress)?;
+        progress.report(d as f32 / total as f32, "filtering groups");
+        Ok(acc)
+    };
+    #[cfg(feature = "parallel")]
+    let parts: Vec<Result<Accumulator>> = {
+        use rayon::prelude::*;
+        tiles.par_iter().map(one).collect()
+    };
+    #[cfg(not(feature = "parallel"))]
+    let parts: Vec<Result<Accumulator>> = tiles.iter().map(one).collect();
+    let mut total_acc = Accumulator::new(0, 0, w, h, stage.noisy.len());
+    for part in parts {
+        total_acc.absorb(&part?);
+    }
+    Ok((0..stage.noisy.len())
+        .map(|ch| Plane {
+            width: w,
+            height: h,
+            data: (0..w * h)
+                .map(|i| {
+                    if total_acc.den[i] > 0.0 {
+                        // Rounded to 1/1024 grey level: tilings differ only in the order of f64
+                        // additions, far below this step, so the stage-2 matching sees identical
+                        // basic estimates whatever the tiling.
+                        ((total_acc.num[ch][i] / total_acc.den[i]) * 1024.0).round() as f32 / 1024.0
+                    } else {
+                        stage.noisy[ch].data[i]
+                    }
+                })
+                .collect(),
+        })
+        .collect())
+}
+
+pub fn denoise(planes: &[Plane], sigma: f64, max_value: f64, s: &PatchGraphSettings, progress: &dyn Progress) -> Result<MethodOutput> {
+    let first = planes.first().ok_or_else(|| Error::Internal("no channels to denoise".into()))?;
+    if sigma <= 0.0 {
+        return Ok(MethodOutput { planes: planes.to_vec(), cut_map: None, work_units: 0 });
+    }
+    let prof = profile(s, sigma * 255.0 / max_value);
+    if first.width < prof.patch || first.height < prof.patch {
+        return Err(Error::TooSmall(format!(
+            "the patch-graph method needs at least {0} x {0} pixels; use the pixel-graph method",
+            prof.patch
+        )));
+    }
+    let mut stage = Stage {
+        noisy: planes,
+        basic: None,
+        sigma,
+        range: max_value,
+        prof,
+        dct: dct_matrix(prof.patch),
+        window: kaiser_window(prof.patch, prof.beta),
+        lf: low_freq_indices(prof.patch),
+    };
+    let basic = run_stage(&stage, &SubProgress { parent: progress, start: 0.0, span: 0.45 })?;
+    stage.basic = Some(&basic);
+    let out = run_stage(&stage, &SubProgress { parent: progress, start: 0.45, span: 0.55 })?;
+    progress.report(1.0, "done");
+    Ok(MethodOutput { planes: out, cut_map: None, work_units: 0 })
+}

@@ -1,0 +1,159 @@
+//! Transforms of a group: the orthonormal 2-D DCT-II within each patch (the eigenbasis of the
+//! path graph's Laplacian, see the tests) and, across the group, the graph Fourier basis: the
+//! eigenvectors of the Laplacian of a small graph whose vertices are the patches.
+
+use nalgebra::{DMatrix, SymmetricEigen};
+
+/// Orthonormal DCT-II matrix: C[f][n] = a_f cos(pi f (n + 1/2) / k), a_0 = sqrt(1/k), else sqrt(2/k).
+pub fn dct_matrix(k: usize) -> Vec<f32> {
+    let mut c = vec![0.0f32; k * k];
+    for f in 0..k {
+        let a = if f == 0 { (1.0 / k as f64).sqrt() } else { (2.0 / k as f64).sqrt() };
+        for n in 0..k {
+            c[f * k + n] = (a * (std::f64::consts::PI * f as f64 * (n as f64 + 0.5) / k as f64).cos()) as f32;
+        }
+    }
+    c
+}
+
+/// y += a * x over equal-length slices (the loop the compiler vectorises).
+#[inline]
+pub fn axpy(y: &mut [f32], a: f32, x: &[f32]) {
+    for (yi, xi) in y.iter_mut().zip(x) {
+        *yi += a * xi;
+    }
+}
+
+/// Y = C X C^T for a k x k patch (row-major); `tmp` is scratch of k * k. The usual sizes get
+/// their own copy of the loops with k known, which the compiler unrolls.
+pub fn dct2(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
+    match k {
+        8 => dct2_body(c, 8, x, y, tmp),
+        12 => dct2_body(c, 12, x, y, tmp),
+        _ => dct2_body(c, k, x, y, tmp),
+    }
+}
+
+/// X = C^T Y C, the inverse of `dct2`.
+pub fn idct2(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
+    match k {
+        8 => idct2_body(c, 8, y, x, tmp),
+        12 => idct2_body(c, 12, y, x, tmp),
+        _ => idct2_body(c, k, y, x, tmp),
+    }
+}
+
+#[inline(always)]
+fn dct2_body(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
+    // tmp = C X (columns), then y = tmp C^T (rows), both as row operations on contiguous memory.
+    tmp.iter_mut().for_each(|v| *v = 0.0);
+    for f in 0..k {
+        for n in 0..k {
+            axpy(&mut tmp[f * k..(f + 1) * k], c[f * k + n], &x[n * k..(n + 1) * k]);
+        }
+    }
+    for r in 0..k {
+        let row = &tmp[r * k..(r + 1) * k];
+        for f in 0..k {
+            y[r * k + f] = row.iter().zip(&c[f * k..(f + 1) * k]).map(|(a, b)| a * b).sum();
+        }
+    }
+}
+
+#[inline(always)]
+fn idct2_body(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
+    // tmp = C^T Y (columns), then x = tmp C (rows).
+    tmp.iter_mut().for_each(|v| *v = 0.0);
+    for f in 0..k {
+        for n in 0..k {
+            axpy(&mut tmp[n * k..(n + 1) * k], c[f * k + n], &y[f * k..(f + 1) * k]);
+        }
+    }
+    x.iter_mut().for_each(|v| *v = 0.0);
+    for r in 0..k {
+        for f in 0..k {
+            let a = tmp[r * k + f];
+            axpy(&mut x[r * k..(r + 1) * k], a, &c[f * k..(f + 1) * k]);
+        }
+    }
+}
+
+/// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
+/// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
+pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
+    let mut l = DMatrix::<f64>::zeros(n, n);
+    for i in 0..n {
+        for j in 0..n {
+            if i != j {
+                let w = weights[i * n + j];
+                l[(i, j)] = -w;
+                l[(i, i)] += w;
+            }
+        }
+    }
+    let eig = SymmetricEigen::new(l);
+    let mut order: Vec<usize> = (0..n).collect();
+    order.sort_by(|&a, &b| eig.eigenvalues[a].total_cmp(&eig.eigenvalues[b]));
+    let mut u = DMatrix::<f64>::zeros(n, n);
+    for (dst, &src) in order.iter().enumerate() {
+        let mut col = eig.eigenvectors.column(src).into_owned();
+        // Sign convention: the largest-magnitude entry positive, so results do not depend on
+        // the eigensolver's arbitrary signs.
+        let imax = col.iamax();
+        if col[imax] < 0.0 {
+            col.neg_mut();
+        }
+        u.set_column(dst, &col);
+    }
+    u
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::graph::laplacian;
+
+    #[test]
+    fn dct_ii_rows_are_the_path_graph_laplacian_eigenvectors() {
+        // Closed form (Strang 1999): the path graph's Laplacian has eigenvectors cos(pi f (n+1/2)/k)
+        // with eigenvalues 2 - 2 cos(pi f / k); so the patch transform is a graph Fourier transform.
+        let k = 8;
+        let c = dct_matrix(k);
+        let l = laplacian::path(k);
+        for f in 0..k {
+            let v: Vec<f64> = (0..k).map(|n| f64::from(c[f * k + n])).collect();
+            let lambda = 2.0 - 2.0 * (std::f64::consts::PI * f as f64 / k as f64).cos();
+            for (row, vec) in l.outer_iterator().enumerate() {
+                let lv: f64 = vec.iter().map(|(col, a)| a * v[col]).sum();
+                assert!((lv - lambda * v[row]).abs() < 1e-6);
+            }
+        }
+    }
+
+    #[test]
+    fn dct2_is_orthonormal_and_inverts() {
+        // Invariant: Parseval (energy kept) and idct2(dct2(x)) = x.
+        let k = 8;
+        let c = dct_matrix(k);
+        let x: Vec<f32> = (0..64).map(|i| ((i * 37) % 23) as f32 - 11.0).collect();
+        let (mut y, mut back, mut tmp) = (vec![0.0; 64], vec![0.0; 64], vec![0.0; 64]);
+        dct2(&c, k, &x, &mut y, &mut tmp);
+        idct2(&c, k, &y, &mut back, &mut tmp);
+        let ex: f32 = x.iter().map(|v| v * v).sum();
+        let ey: f32 = y.iter().map(|v| v * v).sum();
+        assert!((ex - ey).abs() < 1e-3 * ex);
+        assert!(x.iter().zip(&back).all(|(a, b)| (a - b).abs() < 1e-4));
+    }
+
+    #[test]
+    fn group_basis_is_orthonormal_with_a_constant_first_vector() {
+        // Invariants: U^T U = I; a connected graph's Laplacian has the constant vector for eigenvalue 0.
+        let n = 6;
+        let w: Vec<f64> = (0..n * n).map(|i| if i / n == i % n { 0.0 } else { 0.2 + ((i / n + i % n) % 5) as f64 * 0.1 }).collect();
+        let u = graph_fourier_basis(&w, n);
+        let gram = u.transpose() * &u;
+        assert!((gram - DMatrix::identity(n, n)).abs().max() < 1e-10);
+        let c = 1.0 / (n as f64).sqrt();
+        assert!(u.column(0).iter().all(|v| (v - c).abs() < 1e-10));
+    }
+}
