@@ -6,7 +6,7 @@ use crate::color;
 use crate::error::Result;
 use crate::methods::{self, MethodOutput};
 use crate::metrics::{self, ResidualStats};
-use crate::noise::{self, vst, NoiseEstimate};
+use crate::noise::{self, vst::PhotonNoise, NoiseEstimate};
 use crate::planes::{Image, Plane};
 use crate::progress::{Progress, SubProgress};
 use crate::settings::{Method, NoiseModel, Settings, Sigma};
@@ -46,15 +46,15 @@ pub fn estimate_noise(img: &Image) -> Vec<NoiseEstimate> {
 
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
     settings.validate()?;
-    let gain = settings.poisson_gain;
+    let photon = PhotonNoise { gain: settings.poisson_gain, read: settings.poisson_read_noise };
     let working = match settings.noise {
         NoiseModel::Gaussian => img.channels.clone(),
-        NoiseModel::Poisson => map_planes(&img.channels, |v| vst::forward(v, gain)),
+        NoiseModel::Poisson => map_planes(&img.channels, |v| photon.forward(v)),
     };
     // The range of the working domain, so sigma-relative parameters see the same scale.
     let range = match settings.noise {
         NoiseModel::Gaussian => f64::from(img.max_value()),
-        NoiseModel::Poisson => vst::forward(f64::from(img.max_value()), gain),
+        NoiseModel::Poisson => photon.forward(f64::from(img.max_value())),
     };
     let estimates: Vec<NoiseEstimate> = working.iter().map(noise::estimate).collect();
     let (sigma, estimated) = match settings.sigma {
@@ -72,7 +72,7 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     let out_planes = match settings.noise {
         NoiseModel::Gaussian => planes,
-        NoiseModel::Poisson => map_planes(&planes, |d| vst::inverse(d, gain)),
+        NoiseModel::Poisson => map_planes(&planes, |d| photon.inverse(d)),
     };
     progress.report(1.0, "done");
     Ok(RunOutput {

@@ -82,12 +82,12 @@ impl Default for PixelGraphSettings {
         PixelGraphSettings {
             filter: GraphFilter::Tikhonov,
             strength: 1.0,
-            weight_scale: 0.3,
+            weight_scale: 0.4,
             cut_threshold: 2.0,
             radius: 1,
             patch_radius: 1,
             passes: 2,
-            guide_blur: 1.0,
+            guide_blur: 0.6,
         }
     }
 }
@@ -137,6 +137,8 @@ pub struct Settings {
     pub noise: NoiseModel,
     /// Grey levels per photon for the Poisson model.
     pub poisson_gain: f64,
+    /// Gaussian read-noise std (grey levels) added to the photon noise.
+    pub poisson_read_noise: f64,
     pub pixel_graph: PixelGraphSettings,
     pub patch_graph: PatchGraphSettings,
 }
@@ -149,6 +151,7 @@ impl Default for Settings {
             sigma: Sigma::AUTO,
             noise: NoiseModel::Gaussian,
             poisson_gain: 1.0,
+            poisson_read_noise: 0.0,
             pixel_graph: PixelGraphSettings::default(),
             patch_graph: PatchGraphSettings::default(),
         }
@@ -187,6 +190,7 @@ impl Settings {
             range("sigma", v, 0.0, 65535.0)?;
         }
         range("poisson_gain", self.poisson_gain, 1e-6, 65535.0)?;
+        range("poisson_read_noise", self.poisson_read_noise, 0.0, 65535.0)?;
         let p = &self.pixel_graph;
         range("pixel_graph.strength", p.strength, 0.0, 20.0)?;
         range("pixel_graph.weight_scale", p.weight_scale, 0.05, 20.0)?;

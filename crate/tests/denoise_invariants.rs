@@ -147,3 +147,21 @@ fn images_smaller_than_a_patch_get_a_clear_error() {
     let e = pipeline::denoise(&img, &patch(10.0, 64), &NoProgress).err().unwrap();
     assert!(e.to_string().contains("pixel-graph"), "{e}");
 }
+
+#[test]
+fn the_group_of_a_clicked_pixel_covers_it_and_is_ranked() {
+    // Invariants of the inspection data: the reference comes first with similarity 1, covers the
+    // pixel, similarities never increase down the list, and every member lies in the search window.
+    let (w, h) = (64usize, 48usize);
+    let n = noise(w * h, 8.0, 3);
+    let p = Plane::from_fn(w, h, |x, y| if (x / 6) % 2 == 0 { 70.0 } else { 170.0 } + n[y * w + x]);
+    let s = patchgraph::settings::PatchGraphSettings::default();
+    let g = patchgraph::methods::patch_graph::group_at(&p, 8.0, 255.0, &s, 30, 20).unwrap();
+    let (rx, ry) = g.positions[0];
+    assert!(rx <= 30 && 30 < rx + 8 && ry <= 20 && 20 < ry + 8);
+    assert_eq!(g.similarity[0], 1.0);
+    assert!(g.similarity.windows(2).all(|v| v[0] >= v[1]));
+    assert!(g.positions.iter().all(|&(x, y)| x.abs_diff(rx) <= 12 && y.abs_diff(ry) <= 12));
+    // Stripes of period 12: the best matches sit at horizontal shifts that are multiples of 12.
+    assert!(g.positions[1..4].iter().all(|&(x, _)| x.abs_diff(rx) % 12 == 0), "{:?}", &g.positions[..4]);
+}

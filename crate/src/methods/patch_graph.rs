@@ -333,3 +333,30 @@ pub fn denoise(planes: &[Plane], sigma: f64, max_value: f64, s: &PatchGraphSetti
     progress.report(1.0, "done");
     Ok(MethodOutput { planes: out, cut_map: None, work_units: 0 })
 }
+
+/// Inspection: the stage-1 group of the reference patch nearest to pixel (x, y) whose square covers
+/// it, matched on the luminance plane as a run would. Positions are in image coordinates.
+pub fn group_at(luma: &Plane, sigma: f64, max_value: f64, s: &PatchGraphSettings, x: usize, y: usize) -> Result<Group> {
+    let prof = profile(s, sigma * 255.0 / max_value);
+    let k = prof.patch;
+    if luma.width < k || luma.height < k || x >= luma.width || y >= luma.height {
+        return Err(Error::TooSmall(format!("no patch of {k} x {k} pixels covers ({x}, {y}) in this image")));
+    }
+    // The reference corner on the run's grid closest to placing (x, y) at the patch centre.
+    let nearest = |axis: Vec<usize>, v: usize| {
+        let want = v.saturating_sub(k / 2);
+        axis.into_iter().filter(|&a| a <= v && v < a + k).min_by_key(|&a| a.abs_diff(want)).unwrap_or(0)
+    };
+    let rx = nearest(ref_axis(luma.width, k, prof.step), x);
+    let ry = nearest(ref_axis(luma.height, k, prof.step), y);
+    let mp = MatchParams {
+        patch: k,
+        search: prof.search,
+        max_group: prof.group1,
+        min_similarity: prof.min_similarity,
+        range: max_value,
+        noise_var: sigma * sigma,
+    };
+    let groups = match_groups(luma, &[(rx, ry)], &mp, &crate::progress::NoProgress)?;
+    groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))
+}

@@ -99,7 +99,8 @@ fn product(v: &[f64], w: usize, h: usize, dx: isize, dy: isize, out: &mut [f64])
     }
 }
 
-/// SSIM of two patches from their means, variances (noise removed) and covariance.
+/// SSIM of two patches from their means, variances (noise removed) and covariance. With the noise
+/// taken out the ratio can pass 1 by chance; ranking uses it as it is.
 #[inline]
 pub fn patch_ssim(ma: f64, mb: f64, va: f64, vb: f64, cov: f64, c1: f64, c2: f64) -> f64 {
     ((2.0 * ma * mb + c1) * (2.0 * cov + c2)) / ((ma * ma + mb * mb + c1) * (va + vb + c2))
@@ -173,9 +174,10 @@ pub fn match_groups(img: &Plane, refs: &[(usize, usize)], p: &MatchParams, progr
     }
     Ok(best
         .into_iter()
-        .map(|mut b| {
-            b.sims[0] = 1.0;
-            Group { positions: b.pos, similarity: b.sims }
+        .map(|b| {
+            // Reported capped at 1 (the reference's own value), which keeps the order.
+            let similarity = b.sims.iter().map(|s| s.min(1.0)).collect();
+            Group { positions: b.pos, similarity }
         })
         .collect())
 }

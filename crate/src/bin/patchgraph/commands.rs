@@ -11,6 +11,14 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
+/// Like println!, but a closed stdout (a pipe into `head`) ends the output quietly, not in a panic.
+macro_rules! outln {
+    ($($t:tt)*) => {{
+        use std::io::Write;
+        let _ = writeln!(std::io::stdout(), $($t)*);
+    }};
+}
+
 pub struct Failure {
     pub code: u8,
     pub message: String,
@@ -151,10 +159,10 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             "work_units": r.work_units,
             "settings": settings,
         });
-        println!("{v}");
+        outln!("{v}");
     } else {
         let how = if r.sigma_was_estimated { "estimated" } else { "given" };
-        println!(
+        outln!(
             "{} -> {}: {} with sigma {:.2} ({how}), {:.2} s",
             a.input.display(),
             a.output.display(),
@@ -163,7 +171,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             seconds
         );
         for (c, s) in r.residual.iter().enumerate() {
-            println!(
+            outln!(
                 "  channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
                 s.std, s.std_over_sigma, s.lag1_autocorrelation, s.edge_correlation
             );
@@ -187,11 +195,11 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
             .collect();
         let v = json!({"sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
                        "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks; the mean over channels"});
-        println!("{v}");
+        outln!("{v}");
     } else {
-        println!("{}: sigma {:.3} (grey levels of {} bits)", input.display(), sigma, img.depth.bits());
+        outln!("{}: sigma {:.3} (grey levels of {} bits)", input.display(), sigma, img.depth.bits());
         for (c, e) in est.iter().enumerate() {
-            println!(
+            outln!(
                 "  channel {c}: Immerkaer {:.3}, Immerkaer on calm blocks {:.3} (used), wavelet MAD {:.3}",
                 e.immerkaer, e.immerkaer_calm_blocks, e.wavelet_mad
             );
@@ -205,11 +213,11 @@ pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
     let b = read_image(test, &DecodeLimits::default())?;
     let q = metrics::compare(&a, &b).map_err(|e| Failure::about(test, e))?;
     if json_out {
-        println!("{}", serde_json::to_string(&q).map_err(|e| Failure { code: 1, message: e.to_string() })?);
+        outln!("{}", serde_json::to_string(&q).map_err(|e| Failure { code: 1, message: e.to_string() })?);
     } else {
-        println!("PSNR {:.3} dB, SSIM {:.4} (data range {})", q.psnr, q.ssim, q.data_range);
+        outln!("PSNR {:.3} dB, SSIM {:.4} (data range {})", q.psnr, q.ssim, q.data_range);
         for (c, ch) in q.channels.iter().enumerate() {
-            println!("  channel {c}: PSNR {:.3} dB, SSIM {:.4}", ch.psnr, ch.ssim);
+            outln!("  channel {c}: PSNR {:.3} dB, SSIM {:.4}", ch.psnr, ch.ssim);
         }
     }
     Ok(())

@@ -88,7 +88,7 @@ fn main() -> ExitCode {
         Err(e) => {
             use clap::error::ErrorKind;
             if matches!(e.kind(), ErrorKind::DisplayHelp | ErrorKind::DisplayVersion) {
-                print!("{e}");
+                let _ = e.print();
                 return ExitCode::SUCCESS;
             }
             eprintln!("{}", one_line(&e));
