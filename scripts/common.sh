@@ -27,3 +27,30 @@ ensure_wasm_target() {
     rustup target add wasm32-unknown-unknown
   fi
 }
+
+# The wasm-bindgen CLI at exactly the version of the wasm-bindgen crate in Cargo.lock.
+ensure_wasm_bindgen() {
+  local want
+  want="$(awk '/^name = "wasm-bindgen"$/ {getline; gsub(/"/, "", $3); print $3; exit}' Cargo.lock)"
+  export PATH="$ROOT/.tools/bin:$PATH"
+  if [ "$(wasm-bindgen --version 2>/dev/null | cut -d' ' -f2)" != "$want" ]; then
+    say "installing wasm-bindgen-cli $want into .tools (a few minutes, once)"
+    # Not --locked: one of its locked dependencies is missing from the registry.
+    cargo install wasm-bindgen-cli --version "$want" --root "$ROOT/.tools"
+  fi
+}
+
+# Debian's Chromium for the browser tests, and playwright-core to drive it.
+ensure_browser() {
+  if ! command -v chromium >/dev/null 2>&1; then
+    say "installing Chromium from Debian's packages"
+    if [ "$(id -u)" = 0 ]; then SUDO=""; else SUDO="sudo"; fi
+    $SUDO apt-get update -qq
+    DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq chromium chromium-driver >/dev/null
+  fi
+  if [ ! -d node_modules/playwright-core ] || ! cmp -s package-lock.json node_modules/.installed-lock.json; then
+    say "installing npm test dependencies"
+    npm ci --no-audit --no-fund --loglevel=error
+    cp package-lock.json node_modules/.installed-lock.json
+  fi
+}

@@ -1,8 +1,10 @@
 #!/usr/bin/env bash
-# Installs what the tests need (wasm32 target, Python reference libraries) and runs every test.
+# Installs what the tests need (wasm32 target, pinned wasm-bindgen CLI, Python reference
+# libraries, Debian's Chromium and playwright-core) and runs every test.
 source "$(dirname "$0")/common.sh"
 ensure_wasm_target
 ensure_python
+ensure_browser
 "$ROOT/scripts/build.sh"
 say "Rust tests (unit, closed forms, invariants, CLI contract)"
 cargo test --release --locked -p patchgraph
@@ -15,3 +17,5 @@ done
 echo "sample images match"
 say "cross-checks against reference libraries (pytest)"
 PATCHGRAPH_BIN="$ROOT/target/release/patchgraph" "$VENV/bin/python" -m pytest -q tests
+say "wasm module and page in Chromium (node --test)"
+PATCHGRAPH_BIN="$ROOT/target/release/patchgraph" node --test --test-concurrency=1 tests/browser/

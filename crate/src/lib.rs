@@ -1,8 +1,8 @@
 //! Patchgraph: image denoising with graph signal processing.
 //!
 //! The core knows nothing of terminals, browsers or file systems: it takes bytes and settings,
-//! returns bytes, numbers and typed errors. The CLI (`src/bin/patchgraph`) and, later, the wasm
-//! bindings are thin faces over [`pipeline`].
+//! returns bytes, numbers and typed errors. The CLI (`src/bin/patchgraph`) and the wasm bindings
+//! (`wasm.rs`, built only for wasm32) are thin faces over [`pipeline`].
 
 pub mod codec;
 pub mod color;
@@ -14,8 +14,11 @@ pub mod noise;
 pub mod patch;
 pub mod pipeline;
 pub mod planes;
+pub mod preview;
 pub mod progress;
 pub mod settings;
+#[cfg(target_arch = "wasm32")]
+pub mod wasm;
 
 pub use error::{Error, Result};
 pub use planes::{Image, Plane};

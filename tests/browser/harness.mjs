@@ -1,0 +1,26 @@
+// Shared by the browser tests and the browser benchmark: serve www/, launch Debian's Chromium
+// through playwright-core with a fresh profile and no background networking.
+import { chromium } from 'playwright-core';
+import { mkdtempSync, mkdirSync } from 'node:fs';
+import { tmpdir } from 'node:os';
+import { join, dirname } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { serve } from '../../scripts/static-server.mjs';
+
+export const ROOT = join(dirname(fileURLToPath(import.meta.url)), '..', '..');
+export const OUT = join(ROOT, 'tests', 'browser', 'out');
+mkdirSync(OUT, { recursive: true });
+
+export async function start() {
+  const server = await serve(join(ROOT, 'www'), 0);
+  const url = `http://127.0.0.1:${server.address().port}/`;
+  const context = await chromium.launchPersistentContext(mkdtempSync(join(tmpdir(), 'pg-chromium-')), {
+    executablePath: process.env.CHROMIUM || '/usr/bin/chromium',
+    headless: true,
+    acceptDownloads: true,
+    viewport: { width: 1280, height: 800 },
+    args: ['--no-sandbox', '--disable-gpu', '--disable-background-networking', '--disable-component-update',
+      '--disable-sync', '--no-first-run', '--disable-quic'],
+  });
+  return { server, url, context, async close() { await context.close(); server.close(); } };
+}

@@ -1,0 +1,134 @@
+// End-to-end tests of the page in real Chromium: input by picker, drop and samples; two settings
+// side by side; download and compare with the CLI; stop; bad files; no request off the origin;
+// no console errors. Screenshots go to tests/browser/out/ for review.
+import { test, before, after } from 'node:test';
+import assert from 'node:assert/strict';
+import { execFileSync } from 'node:child_process';
+import { readFileSync, writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { start, ROOT, OUT } from './harness.mjs';
+
+const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
+const SAMPLES = join(ROOT, 'sample-images');
+let h; let page;
+const consoleErrors = [];
+const foreign = [];
+
+before(async () => {
+  h = await start();
+  page = await h.context.newPage();
+  page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
+  page.on('pageerror', (e) => consoleErrors.push(String(e)));
+  h.context.on('request', (r) => { if (!r.url().startsWith(h.url) && !r.url().startsWith('blob:')) foreign.push(r.url()); });
+  await page.goto(h.url);
+  await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
+});
+
+after(async () => { await h.close(); });
+
+const stage = (pane) => page.locator('.pane').nth(pane).locator('.stage');
+
+async function runPane(i, click = true) {
+  if (click) await page.locator('.pane').nth(i).locator('.run').click();
+  try {
+    await stage(i).filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+  } catch (e) {
+    const texts = await page.locator('.pane .stage').allTextContents();
+    const errs = await page.locator('.pane .error').allTextContents();
+    throw new Error(`pane ${i} did not finish: stages ${JSON.stringify(texts)}, errors ${JSON.stringify(errs)}, console ${JSON.stringify(consoleErrors)}`);
+  }
+  assert.match(await stage(i).textContent(), /done/);
+}
+
+async function download(i, selector) {
+  const [d] = await Promise.all([page.waitForEvent('download'), page.locator('.pane').nth(i).locator(selector).click()]);
+  const path = join(OUT, d.suggestedFilename());
+  await d.saveAs(path);
+  return path;
+}
+
+const metrics = (a, b) => JSON.parse(execFileSync(CLI, ['metrics', a, b, '--json'], { encoding: 'utf8' }));
+
+test('the built-in sample loads on first visit with its reference', async () => {
+  assert.match(await page.locator('#source-info').textContent(), /cells-noisy\.png: 256 × 256, grey, 8-bit/);
+  assert.match(await page.locator('#reference-info').textContent(), /cells-clean\.png/);
+  await page.screenshot({ path: join(OUT, 'first-visit.png'), fullPage: true });
+});
+
+test('two settings run side by side, differ, and match the CLI', async () => {
+  await page.setInputFiles('#file', join(SAMPLES, 'chart-noisy.png'));
+  await page.waitForFunction(() => /chart-noisy\.png: 256/.test(document.getElementById('source-info').textContent));
+  await page.setInputFiles('#reference', join(SAMPLES, 'chart-clean.png'));
+  await page.waitForFunction(() => /chart-clean/.test(document.getElementById('reference-info').textContent));
+  // Both start before either ends: clicks one after the other (concurrent clicks can interleave
+  // their mouse events), then both runs are awaited.
+  await page.locator('.pane').nth(0).locator('.run').click();
+  await page.locator('.pane').nth(1).locator('.run').click();
+  await Promise.all([runPane(0, false), runPane(1, false)]);
+  const a = await download(0, '.save-png');
+  const b = await download(1, '.save-png');
+  const input = join(SAMPLES, 'chart-noisy.png');
+  assert.notDeepEqual(readFileSync(a), readFileSync(input));
+  assert.notDeepEqual(readFileSync(a), readFileSync(b));
+  const noisyPsnr = metrics(join(SAMPLES, 'chart-clean.png'), input).psnr;
+  for (const [i, file] of [[0, a], [1, b]]) {
+    // The same core natively: the CLI with the pane's saved settings gives the same PSNR.
+    const settings = await download(i, '.save-json');
+    const cliOut = join(OUT, `cli-${i}.png`);
+    execFileSync(CLI, ['denoise', input, '-o', cliOut, '--settings', settings]);
+    const page_ = metrics(join(SAMPLES, 'chart-clean.png'), file).psnr;
+    const cli = metrics(join(SAMPLES, 'chart-clean.png'), cliOut).psnr;
+    assert.ok(Math.abs(page_ - cli) <= 0.01, `pane ${i}: page ${page_} dB, CLI ${cli} dB`);
+    assert.ok(page_ > noisyPsnr + 3, `pane ${i} improved only from ${noisyPsnr} to ${page_}`);
+    // The pane shows the same PSNR that the CLI measures on the downloaded file.
+    const shown = await page.locator('.pane').nth(i).locator('.metrics').textContent();
+    assert.ok(shown.includes(`${page_.toFixed(2)} dB`), shown);
+  }
+  await page.screenshot({ path: join(OUT, 'two-settings.png'), fullPage: true });
+});
+
+test('the views switch and the patch group of a clicked point is outlined', async () => {
+  const pane = page.locator('.pane').nth(0);
+  await pane.locator('.views input[value=residual]').check();
+  await pane.locator('.show-group').check();
+  const box = await pane.locator('.viewport').boundingBox();
+  await page.mouse.click(box.x + box.width / 2, box.y + box.height / 2);
+  await page.waitForFunction(() => /group of \d+ patches/.test(document.querySelector('.pane .stage').textContent));
+  await page.screenshot({ path: join(OUT, 'residual-and-group.png'), fullPage: true });
+});
+
+test('an image dropped on the page is opened', async () => {
+  const bytes = [...readFileSync(join(SAMPLES, 'board-noisy.png'))];
+  await page.evaluate((data) => {
+    const dt = new DataTransfer();
+    dt.items.add(new File([new Uint8Array(data)], 'dropped-board.png', { type: 'image/png' }));
+    document.dispatchEvent(new DragEvent('drop', { dataTransfer: dt, bubbles: true, cancelable: true }));
+  }, bytes);
+  await page.waitForFunction(() => /dropped-board\.png: 320 × 240, RGB/.test(document.getElementById('source-info').textContent));
+});
+
+test('stop ends a run at once and the pane can run again', async () => {
+  const pane = page.locator('.pane').nth(0);
+  await pane.locator('.run').click();
+  await pane.locator('.stop').click();
+  await page.waitForFunction(() => document.querySelector('.pane .stage').textContent === 'stopped');
+  assert.equal(await pane.locator('.run').isDisabled(), false);
+  await runPane(0);
+});
+
+test('a bad file shows a message and the next good file still works', async () => {
+  const bad = join(OUT, 'not-an-image.png');
+  writeFileSync(bad, 'this is text, not a picture\n');
+  await page.setInputFiles('#file', bad);
+  await page.waitForFunction(() => /not-an-image\.png: the file is not an image/.test(document.getElementById('source-error').textContent));
+  await page.screenshot({ path: join(OUT, 'bad-file.png'), fullPage: true });
+  await page.setInputFiles('#file', join(SAMPLES, 'cells-noisy.png'));
+  await page.waitForFunction(() => /cells-noisy\.png: 256/.test(document.getElementById('source-info').textContent));
+  assert.equal(await page.locator('#source-error').textContent(), '');
+  await runPane(1);
+});
+
+test('nothing left the origin and the console stayed clean', async () => {
+  assert.deepEqual(foreign, []);
+  assert.deepEqual(consoleErrors, []);
+});

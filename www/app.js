@@ -1,0 +1,179 @@
+// The page: loads an image (drop, picker, paste, samples), keeps 2 to 4 settings side by side,
+// exports results, settings and metrics. All computation runs in workers (tasks.js).
+import { call } from './tasks.js';
+import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize } from './view.js';
+import { Pane } from './panes.js';
+
+const STORE = 'patchgraph.settings.v1';
+const names = ['A', 'B', 'C', 'D'];
+const $ = (id) => document.getElementById(id);
+
+const app = {
+  source: null, // {name, bytes, info}: the bytes are never changed; workers get copies
+  reference: null,
+  panes: [],
+  defaults: null,
+
+  download(name, blob) {
+    const a = document.createElement('a');
+    a.href = URL.createObjectURL(blob);
+    a.download = name;
+    document.body.appendChild(a);
+    a.click();
+    a.remove();
+    setTimeout(() => URL.revokeObjectURL(a.href), 10000);
+  },
+
+  remember() {
+    try { localStorage.setItem(STORE, JSON.stringify(this.panes.map((p) => p.settings))); } catch { /* storage off */ }
+  },
+
+  addPane(settings) {
+    if (this.panes.length >= names.length) return;
+    const used = new Set(this.panes.map((p) => p.name));
+    const name = names.find((n) => !used.has(n));
+    const pane = new Pane($('board'), name, settings || structuredClone(this.defaults), this);
+    this.panes.push(pane);
+    pane.paint();
+    this.updateButtons();
+    this.remember();
+  },
+
+  removePane(pane) {
+    if (this.panes.length <= 1) return;
+    if (pane.result && !pane.saved && !confirm(`Setting ${pane.name} has a result that was not saved. Remove it?`)) return;
+    pane.stop();
+    pane.el.remove();
+    this.panes = this.panes.filter((p) => p !== pane);
+    this.updateButtons();
+    this.remember();
+  },
+
+  updateButtons() {
+    $('add-pane').disabled = this.panes.length >= names.length;
+    for (const p of this.panes) p.q('.remove').disabled = this.panes.length <= 1;
+  },
+};
+
+function describe(info) {
+  const kind = { 1: 'grey', 2: 'grey + alpha', 3: 'RGB', 4: 'RGBA' }[info.channels];
+  return `${info.width} × ${info.height}, ${kind}, ${info.bitDepth}-bit, estimated sigma ${info.sigma.toFixed(2)}`;
+}
+
+async function openSource(name, bytes, fromSample = false) {
+  if (!fromSample) $('sample').value = '';
+  $('source-error').textContent = '';
+  $('source-info').textContent = `Opening ${name}…`;
+  try {
+    const info = await call('open', { bytes: bytes.slice() });
+    const hadOne = Boolean(app.source);
+    app.source = { name, bytes, info };
+    $('source-info').textContent = `${name}: ${describe(info)}`;
+    setImageSize(info.width, info.height);
+    for (const p of app.panes) { p.result = null; p.saved = true; p.q('.save-png').disabled = true; p.showMetrics(); p.clearOverlay(); p.paint(); }
+    fit(app.panes[0].viewport);
+    if (hadOne && app.reference) dropReference('the image changed; load its clean reference again');
+  } catch (e) {
+    $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info)}` : '';
+    $('source-error').textContent = `${name}: ${e.message}`;
+  }
+}
+
+function dropReference(why) {
+  app.reference = null;
+  $('reference-info').textContent = why;
+}
+
+async function openReference(name, bytes) {
+  try {
+    const info = await call('open', { bytes: bytes.slice() });
+    if (app.source && (info.width !== app.source.info.width || info.height !== app.source.info.height)) {
+      throw new Error(`it is ${info.width} × ${info.height}, the image is ${app.source.info.width} × ${app.source.info.height}`);
+    }
+    app.reference = { name, bytes };
+    $('reference-info').textContent = `Reference: ${name}`;
+    for (const p of app.panes) if (p.result) { p.result.quality = null; await p.measure(); }
+  } catch (e) {
+    dropReference(`Reference not used: ${name}: ${e.message}`);
+  }
+}
+
+async function fileBytes(file) { return new Uint8Array(await file.arrayBuffer()); }
+
+async function loadSample(which) {
+  const get = async (kind) => new Uint8Array(await (await fetch(`samples/${which}-${kind}.png`)).arrayBuffer());
+  await openSource(`${which}-noisy.png`, await get('noisy'), true);
+  await openReference(`${which}-clean.png`, await get('clean'));
+}
+
+function wireInput() {
+  $('file').addEventListener('change', async (e) => {
+    const f = e.target.files[0];
+    e.target.value = '';
+    if (f) await openSource(f.name, await fileBytes(f));
+  });
+  $('reference').addEventListener('change', async (e) => {
+    const f = e.target.files[0];
+    e.target.value = '';
+    if (f) await openReference(f.name, await fileBytes(f));
+  });
+  $('sample').addEventListener('change', (e) => { if (e.target.value) loadSample(e.target.value); });
+  $('drop').addEventListener('keydown', (e) => { if (e.key === 'Enter' || e.key === ' ') { e.preventDefault(); $('file').click(); } });
+  document.addEventListener('dragover', (e) => { e.preventDefault(); document.body.classList.add('dragging'); });
+  document.addEventListener('dragleave', (e) => { if (!e.relatedTarget) document.body.classList.remove('dragging'); });
+  document.addEventListener('drop', async (e) => {
+    e.preventDefault();
+    document.body.classList.remove('dragging');
+    const f = e.dataTransfer && e.dataTransfer.files[0];
+    if (f) await openSource(f.name, await fileBytes(f));
+  });
+  document.addEventListener('paste', async (e) => {
+    const f = e.clipboardData && e.clipboardData.files[0];
+    if (f) await openSource(f.name || 'pasted image', await fileBytes(f));
+  });
+}
+
+function csv() {
+  const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
+  const cols = ['setting', 'method', 'sigma', 'sigma_estimated', 'residual_std_over_sigma', 'residual_lag1_correlation',
+    'residual_edge_correlation', 'psnr', 'ssim', 'seconds'];
+  const cell = (v) => (v === null || v === undefined ? '' : String(v));
+  const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';
+  return [['image', ...cols].join(','), ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))].join(','))].join('\n') + '\n';
+}
+
+function wireToolbar() {
+  const vp = () => app.panes[0].viewport;
+  const centre = () => { const r = vp().getBoundingClientRect(); return [r.width / 2, r.height / 2]; };
+  $('zoom-in').addEventListener('click', () => zoomAt(1.25, ...centre()));
+  $('zoom-out').addEventListener('click', () => zoomAt(0.8, ...centre()));
+  $('zoom-1').addEventListener('click', () => pixelForPixel(vp()));
+  $('zoom-fit').addEventListener('click', () => fit(vp()));
+  $('add-pane').addEventListener('click', () => app.addPane());
+  $('run-all').addEventListener('click', () => app.panes.forEach((p) => p.start()));
+  $('save-csv').addEventListener('click', () => app.download('patchgraph-metrics.csv', new Blob([csv()], { type: 'text/csv' })));
+  onViewChange(() => {
+    for (const p of app.panes) applyTo([p.canvas, p.overlay]);
+    $('zoom-level').textContent = `${Math.round(view.scale * 100)} %`;
+  });
+  window.addEventListener('beforeunload', (e) => {
+    if (app.panes.some((p) => p.result && !p.saved)) { e.preventDefault(); e.returnValue = ''; }
+  });
+}
+
+async function main() {
+  wireInput();
+  wireToolbar();
+  app.defaults = JSON.parse(await call('defaults'));
+  let stored = null;
+  try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }
+  const second = structuredClone(app.defaults);
+  second.method = 'pixel-graph';
+  const start = Array.isArray(stored) && stored.length ? stored.slice(0, 4) : [app.defaults, second];
+  for (const s of start) app.addPane({ ...structuredClone(app.defaults), ...s });
+  $('sample').value = 'cells';
+  await loadSample('cells');
+  document.body.dataset.ready = 'yes';
+}
+
+main().catch((e) => { $('source-error').textContent = `The page could not start: ${e.message}`; });

@@ -1,0 +1,232 @@
+// One pane: a setting of its own, its run (progress, stop), its views and its metrics.
+import { task, call, Stopped } from './tasks.js';
+import { view, applyTo, attach } from './view.js';
+
+const fields = {
+  method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
+  noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; } },
+  'pg-threshold': { get: (s) => s.patch_graph.threshold, set: (s, v) => { s.patch_graph.threshold = +v; } },
+  'pg-patch': { get: (s) => s.patch_graph.patch_size, set: (s, v) => { s.patch_graph.patch_size = +v; } },
+  'pg-group': {
+    get: (s) => s.patch_graph.group_size_hard,
+    set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; },
+  },
+  'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; } },
+  'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; } },
+  'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; } },
+  'px-cut': { get: (s) => s.pixel_graph.cut_threshold, set: (s, v) => { s.pixel_graph.cut_threshold = +v; } },
+  'px-passes': { get: (s) => s.pixel_graph.passes, set: (s, v) => { s.pixel_graph.passes = +v; } },
+};
+
+const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
+const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
+
+export class Pane {
+  constructor(board, name, settings, app) {
+    this.app = app;
+    this.name = name;
+    this.settings = settings;
+    this.result = null;
+    this.saved = true;
+    this.run = null;
+    this.viewName = 'result';
+    const el = document.getElementById('pane-template').content.firstElementChild.cloneNode(true);
+    this.el = el;
+    const q = (s) => el.querySelector(s);
+    this.q = q;
+    q('.pane-title').textContent = `Setting ${name}`;
+    el.setAttribute('aria-label', `Setting ${name}`);
+    for (const r of el.querySelectorAll('.views input[type=radio]')) r.name = `view-${name}`;
+    this.canvas = q('.picture');
+    this.overlay = q('.overlay');
+    this.viewport = q('.viewport');
+    this.writeForm();
+    q('.controls').addEventListener('input', () => this.readForm());
+    q('.controls').addEventListener('submit', (e) => e.preventDefault());
+    q('.run').addEventListener('click', () => this.start());
+    q('.stop').addEventListener('click', () => this.stop());
+    q('.views').addEventListener('change', (e) => {
+      if (e.target.type === 'radio') { this.viewName = e.target.value; this.paint(); }
+      if (e.target.classList.contains('show-group') && !e.target.checked) this.clearOverlay();
+    });
+    q('.save-png').addEventListener('click', () => this.savePng());
+    q('.save-json').addEventListener('click', () => this.app.download(`patchgraph-setting-${name}.json`,
+      new Blob([JSON.stringify(this.settings, null, 2)], { type: 'application/json' })));
+    q('.load-json').addEventListener('change', (e) => this.loadSettings(e.target));
+    q('.remove').addEventListener('click', () => this.app.removePane(this));
+    attach(this.viewport, (x, y) => { if (q('.show-group').checked) this.showGroup(x, y); });
+    board.appendChild(el);
+  }
+
+  writeForm() {
+    const f = this.q('.controls');
+    for (const [name, fld] of Object.entries(fields)) f.elements[name].value = fld.get(this.settings);
+    const auto = this.settings.sigma === 'auto';
+    f.elements['sigma-auto'].checked = auto;
+    f.elements.sigma.disabled = auto;
+    if (!auto) f.elements.sigma.value = this.settings.sigma;
+    this.el.dataset.method = this.settings.method;
+  }
+
+  readForm() {
+    const f = this.q('.controls');
+    for (const [name, fld] of Object.entries(fields)) fld.set(this.settings, f.elements[name].value);
+    const auto = f.elements['sigma-auto'].checked;
+    f.elements.sigma.disabled = auto;
+    this.settings.sigma = auto ? 'auto' : Number(f.elements.sigma.value);
+    this.el.dataset.method = this.settings.method;
+    this.app.remember();
+  }
+
+  async loadSettings(input) {
+    const file = input.files[0];
+    input.value = '';
+    if (!file) return;
+    try {
+      const normalised = await call('check', { json: await file.text() });
+      this.settings = JSON.parse(normalised);
+      this.writeForm();
+      this.app.remember();
+      this.error('');
+    } catch (e) {
+      this.error(`${file.name}: ${e.message}`);
+    }
+  }
+
+  error(text) { this.q('.error').textContent = text; }
+
+  busy(on) {
+    this.q('.run').disabled = on;
+    this.q('.stop').disabled = !on;
+  }
+
+  async start() {
+    const src = this.app.source;
+    if (!src || this.run) return;
+    this.error('');
+    this.busy(true);
+    const bar = this.q('.bar');
+    const stage = this.q('.stage');
+    bar.value = 0;
+    stage.textContent = 'starting';
+    this.run = task('denoise', { bytes: src.bytes.slice(), settings: JSON.stringify(this.settings) }, (f, s) => {
+      bar.value = f;
+      stage.textContent = s;
+    });
+    try {
+      const r = await this.run.promise;
+      r.report = JSON.parse(r.report);
+      r.settings = structuredClone(this.settings);
+      r.quality = null;
+      this.result = r;
+      this.saved = false;
+      this.q('.save-png').disabled = false;
+      stage.textContent = `done in ${fmt(r.seconds)} s`;
+      bar.value = 1;
+      this.paint();
+      await this.measure();
+    } catch (e) {
+      stage.textContent = e instanceof Stopped ? 'stopped' : 'failed';
+      if (!(e instanceof Stopped)) this.error(e.message);
+      bar.value = 0;
+    } finally {
+      this.run = null;
+      this.busy(false);
+    }
+  }
+
+  stop() { if (this.run) this.run.stop(); }
+
+  // PSNR and SSIM against the clean reference, when there is one of the same size.
+  async measure() {
+    const ref = this.app.reference;
+    if (this.result && ref && !this.result.quality) {
+      try {
+        this.result.quality = await call('compare', { clean: ref.bytes.slice(), test: this.result.png.slice() });
+      } catch (e) {
+        this.error(`reference: ${e.message}`);
+      }
+    }
+    this.showMetrics();
+  }
+
+  metricsRow() {
+    const r = this.result;
+    if (!r) return null;
+    const res = r.report.residual;
+    return {
+      setting: this.name,
+      method: r.report.method,
+      sigma: r.report.sigma_used,
+      sigma_estimated: r.report.sigma_was_estimated,
+      residual_std_over_sigma: mean(res.map((x) => x.std_over_sigma)),
+      residual_lag1_correlation: mean(res.map((x) => x.lag1_autocorrelation)),
+      residual_edge_correlation: mean(res.map((x) => x.edge_correlation)),
+      psnr: r.quality ? r.quality.psnr : null,
+      ssim: r.quality ? r.quality.ssim : null,
+      seconds: r.seconds,
+    };
+  }
+
+  showMetrics() {
+    const m = this.metricsRow();
+    const dl = this.q('.metrics');
+    dl.replaceChildren();
+    if (!m) return;
+    const rows = [
+      ['Sigma', `${fmt(m.sigma)} (${m.sigma_estimated ? 'estimated' : 'given'})`],
+      ['Residual std / sigma', fmt(m.residual_std_over_sigma, 3)],
+      ['Residual neighbour correlation', fmt(m.residual_lag1_correlation, 3)],
+      ['Residual–edge correlation', fmt(m.residual_edge_correlation, 3)],
+      ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`],
+      ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4)],
+    ];
+    for (const [k, v] of rows) {
+      const dt = document.createElement('dt'); dt.textContent = k;
+      const dd = document.createElement('dd'); dd.textContent = v;
+      dl.append(dt, dd);
+    }
+  }
+
+  paint() {
+    const src = this.app.source;
+    if (!src) return;
+    const { width, height } = src.info;
+    const r = this.result;
+    const pick = { input: src.info.rgba, result: r && r.rgba, residual: r && r.residual, cuts: r && r.cuts };
+    const rgba = pick[this.viewName] || src.info.rgba;
+    if (this.viewName === 'cuts' && r && !r.cuts) this.error('The cut map exists for the pixel-graph method only.');
+    for (const c of [this.canvas, this.overlay]) {
+      if (c.width !== width || c.height !== height) { c.width = width; c.height = height; }
+    }
+    this.canvas.getContext('2d').putImageData(new ImageData(new Uint8ClampedArray(rgba), width, height), 0, 0);
+    applyTo([this.canvas, this.overlay]);
+  }
+
+  clearOverlay() { this.overlay.getContext('2d').clearRect(0, 0, this.overlay.width, this.overlay.height); }
+
+  async showGroup(x, y) {
+    const src = this.app.source;
+    if (!src) return;
+    try {
+      const g = await call('group', { bytes: src.bytes.slice(), settings: JSON.stringify(this.settings), x, y });
+      const ctx = this.overlay.getContext('2d');
+      this.clearOverlay();
+      ctx.lineWidth = Math.max(1, 1 / view.scale);
+      g.positions.forEach(([px, py], i) => {
+        ctx.strokeStyle = i === 0 ? '#ffd400' : `rgba(0, 220, 255, ${0.35 + 0.65 * Math.max(0, g.similarity[i])})`;
+        ctx.strokeRect(px + 0.5, py + 0.5, g.patch - 1, g.patch - 1);
+      });
+      this.q('.stage').textContent = `group of ${g.positions.length} patches at (${x}, ${y})`;
+    } catch (e) {
+      this.error(e.message);
+    }
+  }
+
+  savePng() {
+    if (!this.result) return;
+    const base = (this.app.source.name || 'image').replace(/\.[^.]+$/, '');
+    this.app.download(`${base}-denoised-${this.name}.png`, new Blob([this.result.png], { type: 'image/png' }));
+    this.saved = true;
+  }
+}
