@@ -157,3 +157,56 @@ fn a_settings_file_is_read_and_flags_override_it() {
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("pixel_graph.radius must be between 1 and 3, got 9"));
 }
+
+#[test]
+fn batch_keeps_going_past_a_bad_file_and_reports_it() {
+    // Five inputs, one of them not an image: four results, a report naming the fifth, exit code 2,
+    // and no partial or temporary file in the output folder.
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in");
+    std::fs::create_dir(&input).unwrap();
+    for i in 0..4 {
+        write_png(&input, &format!("good{i}.png"), if i % 2 == 0 { 8 } else { 16 }, i == 3);
+    }
+    std::fs::write(input.join("bad.png"), b"not an image").unwrap();
+    let s = dir.path().join("s.json");
+    std::fs::write(&s, r#"{"method": "pixel-graph"}"#).unwrap();
+    let out = dir.path().join("out");
+    let o = run(&["batch", input.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--json"]);
+    assert_eq!(o.status.code(), Some(2), "{}", String::from_utf8_lossy(&o.stderr));
+    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["done"], 4);
+    assert_eq!(v["failed"], 1);
+    let mut names = files_in(&out);
+    names.retain(|n| n != "batch-report.csv");
+    assert_eq!(names, vec!["good0.png", "good1.png", "good2.png", "good3.png"]);
+    let report = std::fs::read_to_string(out.join("batch-report.csv")).unwrap();
+    assert!(report.lines().any(|l| l.contains("bad.png") && l.contains("not an image")), "{report}");
+    // Writing into the input folder would replace the inputs: refused per file, inputs intact.
+    let before = std::fs::read(input.join("good0.png")).unwrap();
+    let o = run(&["batch", input.to_str().unwrap(), "-o", input.to_str().unwrap(), "--settings", s.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert_eq!(std::fs::read(input.join("good0.png")).unwrap(), before);
+}
+
+#[test]
+fn shards_split_the_file_list_without_overlap() {
+    let dir = tempfile::tempdir().unwrap();
+    for i in 0..5 {
+        write_png(dir.path(), &format!("f{i}.png"), 8, false);
+    }
+    let s = dir.path().join("s.json");
+    std::fs::write(&s, r#"{"method": "pixel-graph"}"#).unwrap();
+    let mut seen = Vec::new();
+    for k in 1..=2 {
+        let out = dir.path().join(format!("out{k}"));
+        let shard = format!("{k}/2");
+        let o = run(&["batch", dir.path().to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--shard", &shard]);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+        seen.extend(files_in(&out).into_iter().filter(|n| n.ends_with(".png")));
+    }
+    seen.sort();
+    assert_eq!(seen, vec!["f0.png", "f1.png", "f2.png", "f3.png", "f4.png"]);
+    let o = run(&["batch", dir.path().to_str().unwrap(), "-o", "x", "--settings", s.to_str().unwrap(), "--shard", "3/2"]);
+    assert_eq!(o.status.code(), Some(2));
+}

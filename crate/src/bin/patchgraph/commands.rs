@@ -18,6 +18,7 @@ macro_rules! outln {
         let _ = writeln!(std::io::stdout(), $($t)*);
     }};
 }
+pub(crate) use outln;
 
 pub struct Failure {
     pub code: u8,
@@ -25,7 +26,7 @@ pub struct Failure {
 }
 
 impl Failure {
-    fn user(message: String) -> Self {
+    pub fn user(message: String) -> Self {
         Failure { code: 2, message }
     }
     /// A library error about one file, prefixed with the file's name.
@@ -81,14 +82,17 @@ pub struct DenoiseArgs {
     pub json: bool,
 }
 
+/// Reads and validates a settings file.
+pub fn read_settings(p: &Path) -> Result<Settings, Failure> {
+    let text =
+        std::fs::read_to_string(p).map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
+    Settings::from_json(&text).map_err(|e| Failure::about(p, e))
+}
+
 /// Defaults, then the settings file, then flags given on the command line.
 fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
     let mut s = match &a.settings {
-        Some(p) => {
-            let text = std::fs::read_to_string(p)
-                .map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
-            Settings::from_json(&text).map_err(|e| Failure::about(p, e))?
-        }
+        Some(p) => read_settings(p)?,
         None => Settings::default(),
     };
     if let Some(m) = a.method {

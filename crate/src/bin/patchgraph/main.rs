@@ -2,6 +2,7 @@
 //! All computation happens in the library; errors become one line on stderr and an exit code
 //! (2: bad input or settings, 1: internal failure, 130: cancelled).
 
+mod batch;
 mod commands;
 mod terminal;
 
@@ -62,6 +63,21 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// Denoise many files with one setting; results keep their names in OUTDIR.
+    Batch {
+        /// Image files and/or folders of images.
+        #[arg(required = true)]
+        inputs: Vec<PathBuf>,
+        #[arg(short, long)]
+        output: PathBuf,
+        #[arg(long)]
+        settings: PathBuf,
+        /// Only this share of the sorted file list: K/N takes files K, K+N, K+2N, ...
+        #[arg(long)]
+        shard: Option<String>,
+        #[arg(long)]
+        json: bool,
+    },
     /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
     Metrics {
         clean: PathBuf,
@@ -110,6 +126,9 @@ fn main() -> ExitCode {
             })
         }
         Command::Noise { input, json } => commands::noise(&input, json),
+        Command::Batch { inputs, output, settings, shard, json } => {
+            batch::batch(&inputs, &output, &settings, shard.as_deref(), json)
+        }
         Command::Metrics { clean, test, json } => commands::metrics(&clean, &test, json),
     };
     match result {
