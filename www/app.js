@@ -3,6 +3,7 @@
 import { call } from './tasks.js';
 import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize } from './view.js';
 import { Pane } from './panes.js';
+import { runBatch, stopBatch } from './batch.js';
 
 const STORE = 'patchgraph.settings.v1';
 const names = ['A', 'B', 'C', 'D'];
@@ -51,6 +52,10 @@ const app = {
 
   updateButtons() {
     $('add-pane').disabled = this.panes.length >= names.length;
+    const sel = $('batch-pane');
+    const keep = sel.value;
+    sel.replaceChildren(...this.panes.map((p) => new Option(`Setting ${p.name}`, p.name)));
+    if (this.panes.some((p) => p.name === keep)) sel.value = keep;
     for (const p of this.panes) p.q('.remove').disabled = this.panes.length <= 1;
   },
 };
@@ -100,8 +105,15 @@ async function openReference(name, bytes) {
 
 async function fileBytes(file) { return new Uint8Array(await file.arrayBuffer()); }
 
+// Samples come from the page's own folder, or inlined in the one-file page (no fetch from file://).
+async function sampleBytes(file) {
+  const inlined = globalThis.patchgraphSamples && globalThis.patchgraphSamples[file];
+  if (inlined) return Uint8Array.from(atob(inlined), (c) => c.charCodeAt(0));
+  return new Uint8Array(await (await fetch(`samples/${file}`)).arrayBuffer());
+}
+
 async function loadSample(which) {
-  const get = async (kind) => new Uint8Array(await (await fetch(`samples/${which}-${kind}.png`)).arrayBuffer());
+  const get = (kind) => sampleBytes(`${which}-${kind}.png`);
   await openSource(`${which}-noisy.png`, await get('noisy'), true);
   await openReference(`${which}-clean.png`, await get('clean'));
 }
@@ -124,13 +136,36 @@ function wireInput() {
   document.addEventListener('drop', async (e) => {
     e.preventDefault();
     document.body.classList.remove('dragging');
-    const f = e.dataTransfer && e.dataTransfer.files[0];
-    if (f) await openSource(f.name, await fileBytes(f));
+    const files = e.dataTransfer ? [...e.dataTransfer.files] : [];
+    // One file opens for comparison; several go to the batch queue.
+    if (files.length === 1) await openSource(files[0].name, await fileBytes(files[0]));
+    else if (files.length > 1) queueBatch(files);
   });
   document.addEventListener('paste', async (e) => {
     const f = e.clipboardData && e.clipboardData.files[0];
     if (f) await openSource(f.name || 'pasted image', await fileBytes(f));
   });
+}
+
+let batchFiles = [];
+function queueBatch(files) {
+  batchFiles = files;
+  $('batch-summary').textContent = `${files.length} files ready`;
+  $('batch-start').disabled = !files.length;
+}
+
+function wireBatch() {
+  for (const id of ['batch-files', 'batch-folder']) {
+    $(id).addEventListener('change', (e) => {
+      queueBatch([...e.target.files].filter((f) => /\.(png|jpe?g|tiff?|bmp)$/i.test(f.name) || id === 'batch-files'));
+      e.target.value = '';
+    });
+  }
+  $('batch-start').addEventListener('click', () => {
+    const pane = app.panes.find((p) => p.name === $('batch-pane').value) || app.panes[0];
+    runBatch(batchFiles, pane, (n, b) => app.download(n, b));
+  });
+  $('batch-stop').addEventListener('click', stopBatch);
 }
 
 function csv() {
@@ -164,6 +199,7 @@ function wireToolbar() {
 async function main() {
   wireInput();
   wireToolbar();
+  wireBatch();
   app.defaults = JSON.parse(await call('defaults'));
   let stored = null;
   try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }

@@ -17,6 +17,13 @@ function release() {
 
 export class Stopped extends Error {}
 
+// The one-file page sets globalThis.patchgraphWorkerUrl to a blob: URL of a classic worker; the
+// served page uses the module worker beside this file.
+function newWorker() {
+  if (globalThis.patchgraphWorkerUrl) return new Worker(globalThis.patchgraphWorkerUrl);
+  return new Worker(new URL('./worker.js', import.meta.url), { type: 'module' });
+}
+
 // Returns {promise, stop}. `onProgress(fraction, stage)` receives progress messages.
 export function task(kind, payload = {}, onProgress = null) {
   let worker = null;
@@ -26,7 +33,7 @@ export function task(kind, payload = {}, onProgress = null) {
     reject = rej;
     acquire().then(() => {
       if (finished) { release(); return; }
-      worker = new Worker(new URL('./worker.js', import.meta.url), { type: 'module' });
+      worker = newWorker();
       const done = () => { finished = true; worker.terminate(); release(); };
       worker.onmessage = (e) => {
         const m = e.data;

@@ -1,35 +1,5 @@
-// One wasm instance per worker. Messages: {kind, ...}; replies {ok, r} or {ok: false, message};
-// progress while denoising as {progress, stage}. Large byte arrays go back as transfers.
+// Module worker of the served page: one wasm instance, fetched from the page's own origin.
 import init, * as pg from './pkg/patchgraph.js';
+import { installWorker } from './worker-core.js';
 
-const ready = init();
-const MAX_MEGAPIXELS = 64;
-
-function buffers(r) {
-  return ['rgba', 'png', 'residual', 'cuts'].filter((k) => r && r[k]).map((k) => r[k].buffer);
-}
-
-self.onmessage = async (event) => {
-  const m = event.data;
-  try {
-    await ready;
-    let r;
-    switch (m.kind) {
-      case 'defaults': r = pg.defaultSettings(); break;
-      case 'check': r = pg.checkSettings(m.json); break;
-      case 'open': r = pg.open(m.bytes, MAX_MEGAPIXELS); break;
-      case 'denoise': {
-        const start = performance.now();
-        r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, (fraction, stage) => self.postMessage({ progress: fraction, stage }));
-        r.seconds = (performance.now() - start) / 1000;
-        break;
-      }
-      case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;
-      case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, MAX_MEGAPIXELS)); break;
-      default: throw new Error(`unknown request ${m.kind}`);
-    }
-    self.postMessage({ ok: true, r }, buffers(r));
-  } catch (err) {
-    self.postMessage({ ok: false, message: String((err && err.message) || err) });
-  }
-};
+installWorker(pg, init());

@@ -128,6 +128,28 @@ test('a bad file shows a message and the next good file still works', async () =
   await runPane(1);
 });
 
+test('a batch of five files with one bad file gives four results and a report in one ZIP', async () => {
+  const bad = join(OUT, 'broken.png');
+  writeFileSync(bad, 'not a picture');
+  const files = ['cells-noisy.png', 'chart-noisy.png', 'board-noisy.png', 'chart-clean.png'].map((f) => join(SAMPLES, f));
+  await page.locator('#batch-pane').selectOption('B');
+  await page.setInputFiles('#batch-files', [...files.slice(0, 2), bad, ...files.slice(2)]);
+  const [d] = await Promise.all([page.waitForEvent('download', { timeout: 120000 }), page.locator('#batch-start').click()]);
+  const zip = join(OUT, d.suggestedFilename());
+  await d.saveAs(zip);
+  // Read the ZIP with Python's zipfile (an independent reader): names, CRCs, the report.
+  const listing = JSON.parse(execFileSync('python3', ['-c', `
+import json, sys, zipfile
+z = zipfile.ZipFile(sys.argv[1])
+assert z.testzip() is None
+print(json.dumps({"names": z.namelist(), "report": z.read("report.csv").decode()}))`, zip], { encoding: 'utf8' }));
+  const results = listing.names.filter((n) => n.endsWith('.png'));
+  assert.equal(results.length, 4, listing.names.join(', '));
+  assert.match(listing.report, /broken\.png,,,,.*not an image/);
+  assert.match(await page.locator('#batch-summary').textContent(), /4 of 5 files denoised/);
+  await page.screenshot({ path: join(OUT, 'batch.png'), fullPage: true });
+});
+
 test('nothing left the origin and the console stayed clean', async () => {
   assert.deepEqual(foreign, []);
   assert.deepEqual(consoleErrors, []);

@@ -1,0 +1,74 @@
+// Many files with one setting: a queue with per-file progress and an overall bar, stop, per-file
+// errors that do not stop the others, and the results plus a report CSV in one ZIP.
+import { task, Stopped } from './tasks.js';
+import { makeZip } from './zip.js';
+
+const $ = (id) => document.getElementById(id);
+let current = null;
+let stopping = false;
+
+const csvCell = (v) => { const s = v === null || v === undefined ? '' : String(v); return /[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s; };
+
+export async function runBatch(files, pane, download) {
+  if (current || !files.length) return;
+  stopping = false;
+  const list = $('batch-list');
+  list.replaceChildren();
+  const rows = files.map((f) => {
+    const li = document.createElement('li');
+    const label = document.createElement('span');
+    label.textContent = f.name;
+    const bar = document.createElement('progress');
+    bar.max = 1; bar.value = 0; bar.setAttribute('aria-label', `Progress of ${f.name}`);
+    const state = document.createElement('span');
+    state.textContent = 'waiting';
+    li.append(label, ' ', bar, ' ', state);
+    list.appendChild(li);
+    return { bar, state };
+  });
+  $('batch-start').disabled = true;
+  $('batch-stop').disabled = false;
+  const overall = $('batch-overall');
+  const settings = JSON.stringify(pane.settings);
+  const entries = [];
+  const report = [['file', 'result', 'sigma', 'seconds', 'error']];
+  const used = new Set();
+  for (let i = 0; i < files.length; i += 1) {
+    const f = files[i]; const row = rows[i];
+    if (stopping) { row.state.textContent = 'not run (stopped)'; report.push([f.name, '', '', '', 'not run: stopped']); continue; }
+    row.state.textContent = 'running';
+    try {
+      const bytes = new Uint8Array(await f.arrayBuffer());
+      current = task('denoise', { bytes, settings }, (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; });
+      const r = await current.promise;
+      const report_ = JSON.parse(r.report);
+      let name = `${f.name.replace(/\.[^.]+$/, '')}-denoised.png`;
+      for (let k = 2; used.has(name); k += 1) name = `${f.name.replace(/\.[^.]+$/, '')}-denoised-${k}.png`;
+      used.add(name);
+      entries.push({ name, bytes: r.png });
+      report.push([f.name, name, report_.sigma_used.toFixed(4), r.seconds.toFixed(3), '']);
+      row.bar.value = 1;
+      row.state.textContent = 'done';
+    } catch (e) {
+      const why = e instanceof Stopped ? 'stopped' : e.message;
+      report.push([f.name, '', '', '', why]);
+      row.state.textContent = `failed: ${why}`;
+      row.bar.value = 0;
+    } finally {
+      current = null;
+    }
+    overall.value = (i + 1) / files.length;
+  }
+  const csv = `${report.map((r) => r.map(csvCell).join(',')).join('\n')}\n`;
+  entries.push({ name: 'report.csv', bytes: new TextEncoder().encode(csv) });
+  const ok = report.filter((r) => r[1]).length - 1;
+  $('batch-summary').textContent = `${ok} of ${files.length} files denoised; the ZIP holds the results and report.csv.`;
+  download(`patchgraph-batch-${pane.name}.zip`, makeZip(entries));
+  $('batch-start').disabled = false;
+  $('batch-stop').disabled = true;
+}
+
+export function stopBatch() {
+  stopping = true;
+  if (current) current.stop();
+}
