@@ -117,7 +117,7 @@ impl Default for PatchGraphSettings {
     fn default() -> Self {
         PatchGraphSettings {
             patch_size: 0,
-            step: 3,
+            step: 4,
             search_radius: 12,
             group_size_hard: 16,
             group_size_wiener: 16,
