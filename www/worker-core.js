@@ -7,7 +7,7 @@ export function installWorker(pg, ready) {
   self.onmessage = async (event) => {
     const m = event.data;
     try {
-      await ready;
+      const exports = await ready;
       let r;
       switch (m.kind) {
         case 'defaults': r = pg.defaultSettings(); break;
@@ -17,6 +17,9 @@ export function installWorker(pg, ready) {
           const start = performance.now();
           r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, (fraction, stage) => self.postMessage({ progress: fraction, stage }));
           r.seconds = (performance.now() - start) / 1000;
+          // The wasm memory only grows, so after a run it is this worker's peak.
+          const memory = (exports && exports.memory) || (pg.__wasm && pg.__wasm.memory);
+          r.memoryBytes = memory ? memory.buffer.byteLength : null;
           break;
         }
         case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;

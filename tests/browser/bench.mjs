@@ -31,7 +31,12 @@ for (const method of ['pixel-graph', 'patch-graph']) {
   const r = await page.evaluate(async ({ data, method: m }) => {
     const { task } = await import('./tasks.js');
     const settings = JSON.stringify({ method: m, sigma: 20 });
-    const one = async () => (await task('denoise', { bytes: new Uint8Array(data), settings }).promise).seconds;
+    let memory = 0;
+    const one = async () => {
+      const r = await task('denoise', { bytes: new Uint8Array(data), settings }).promise;
+      memory = Math.max(memory, r.memoryBytes || 0);
+      return r.seconds;
+    };
     await one();
     const singles = [await one(), await one(), await one()];
     const t0 = performance.now();
@@ -40,11 +45,11 @@ for (const method of ['pixel-graph', 'patch-graph']) {
     const t1 = performance.now();
     await one();
     const alone = (performance.now() - t1) / 1000;
-    return { singles, pair, alone };
+    return { singles, pair, alone, memory };
   }, { data: bytes, method });
   const wasm = median(r.singles);
   const nat = native(method);
-  rows.push(`| ${method} | ${wasm.toFixed(3)} | ${nat.toFixed(3)} | ${(wasm / nat).toFixed(2)} | ${(2 * r.alone / r.pair).toFixed(2)} |`);
+  rows.push(`| ${method} | ${wasm.toFixed(3)} | ${nat.toFixed(3)} | ${(wasm / nat).toFixed(2)} | ${(2 * r.alone / r.pair).toFixed(2)} | ${(r.memory / 2 ** 20).toFixed(0)} |`);
 }
 await h.close();
 console.log([
@@ -53,8 +58,8 @@ console.log([
   `Image ${image.replace(ROOT + '/', '')}, sigma 20; headless Chromium, one worker, wasm with simd128; native CLI on one thread `
   + '(RAYON_NUM_THREADS=1); medians of 3 after a warm-up. Scaling: two runs in two workers at once against one run alone.',
   '',
-  '| method | wasm seconds | native seconds | wasm / native | 2-worker throughput gain |',
-  '|---|---|---|---|---|',
+  '| method | wasm seconds | native seconds | wasm / native | 2-worker throughput gain | worker wasm memory, MiB |',
+  '|---|---|---|---|---|---|',
   ...rows,
   '',
 ].join('\n'));
