@@ -195,7 +195,9 @@ export class Pane {
     const r = this.result;
     const pick = { input: src.info.rgba, result: r && r.rgba, residual: r && r.residual, cuts: r && r.cuts };
     const rgba = pick[this.viewName] || src.info.rgba;
-    if (this.viewName === 'cuts' && r && !r.cuts) this.error('The cut map exists for the pixel-graph method only.');
+    const noCuts = 'The cut map exists for the pixel-graph method only; showing the input.';
+    if (this.viewName === 'cuts' && r && !r.cuts) this.error(noCuts);
+    else if (this.q('.error').textContent === noCuts) this.error('');
     for (const c of [this.canvas, this.overlay]) {
       if (c.width !== width || c.height !== height) { c.width = width; c.height = height; }
     }
