@@ -148,23 +148,17 @@ pub fn match_groups(img: &Plane, refs: &[(usize, usize)], p: &MatchParams, progr
         sums.fill(&prod);
         for (i, &(rx, ry)) in refs.iter().enumerate() {
             let (mr, vr) = ref_stats[i];
-            // Candidate r + o: sum of P over the reference's square.
-            let (cx, cy) = (rx as isize + dx, ry as isize + dy);
-            if cx >= 0 && cy >= 0 && (cx as usize) < pw && (cy as usize) < ph {
-                let (cx, cy) = (cx as usize, cy as usize);
-                let (mc, vc) = pos_stats[cy * pw + cx];
-                let cov = sums.square(rx, ry) / kk - mr * mc;
-                let sim = patch_ssim(mr, mc, vr, vc, cov, c1, c2);
-                if sim >= p.min_similarity {
-                    best[i].offer(sim as f32, (cx, cy));
+            // Candidate r + o uses P summed over the reference's square; candidate r - o uses P
+            // summed over the candidate's own square (its partner at +o is the reference).
+            for sign in [1isize, -1] {
+                let (cx, cy) = (rx as isize + sign * dx, ry as isize + sign * dy);
+                if cx < 0 || cy < 0 || cx as usize >= pw || cy as usize >= ph {
+                    continue;
                 }
-            }
-            // Candidate r - o: sum of P over the candidate's own square.
-            let (cx, cy) = (rx as isize - dx, ry as isize - dy);
-            if cx >= 0 && cy >= 0 && (cx as usize) < pw && (cy as usize) < ph {
                 let (cx, cy) = (cx as usize, cy as usize);
                 let (mc, vc) = pos_stats[cy * pw + cx];
-                let cov = sums.square(cx, cy) / kk - mr * mc;
+                let at = if sign > 0 { (rx, ry) } else { (cx, cy) };
+                let cov = sums.square(at.0, at.1) / kk - mr * mc;
                 let sim = patch_ssim(mr, mc, vr, vc, cov, c1, c2);
                 if sim >= p.min_similarity {
                     best[i].offer(sim as f32, (cx, cy));
