@@ -1,10 +1,10 @@
 //! One run from start to end: noise model -> colour transform -> method -> inverse transforms.
-//! Works on a decoded [`Image`] and never alters it; `denoise_bytes` adds decode and encode.
+//! Works on a decoded [`Image`] and never alters it.
 
-use crate::codec::{self, DecodeLimits, OutputFormat};
 use crate::color;
 use crate::error::Result;
 use crate::methods::{self, MethodOutput};
+use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
 use crate::noise::{self, vst::PhotonNoise, NoiseEstimate};
 use crate::planes::{Image, Plane};
@@ -44,25 +44,45 @@ pub fn estimate_noise(img: &Image) -> Vec<NoiseEstimate> {
     img.channels.iter().map(noise::estimate).collect()
 }
 
-pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
+/// The one rule for a blind sigma: the mean over channels of each channel's chosen estimate.
+pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
+    estimates.iter().map(|e| e.chosen()).sum::<f64>() / estimates.len().max(1) as f64
+}
+
+/// An image made ready for a method: the noise model applied (`working`), then the colour
+/// transform (`planes`, luminance first), with the sigma and range the method works with.
+struct Prepared {
+    photon: PhotonNoise,
+    working: Vec<Plane>,
+    planes: Vec<Plane>,
+    range: f64,
+    sigma: f64,
+    estimated: bool,
+    estimates: Vec<NoiseEstimate>,
+}
+
+fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
     settings.validate()?;
     let photon = PhotonNoise { gain: settings.poisson_gain, read: settings.poisson_read_noise };
-    let working = match settings.noise {
-        NoiseModel::Gaussian => img.channels.clone(),
-        NoiseModel::Poisson => map_planes(&img.channels, |v| photon.forward(v)),
-    };
-    // The range of the working domain, so sigma-relative parameters see the same scale.
-    let range = match settings.noise {
-        NoiseModel::Gaussian => f64::from(img.max_value()),
-        NoiseModel::Poisson => photon.forward(f64::from(img.max_value())),
+    let (working, range) = match settings.noise {
+        NoiseModel::Gaussian => (img.channels.clone(), f64::from(img.max_value())),
+        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
+        NoiseModel::Poisson => {
+            (map_planes(&img.channels, |v| photon.forward(v)), photon.forward(f64::from(img.max_value())))
+        }
     };
     let estimates: Vec<NoiseEstimate> = working.iter().map(noise::estimate).collect();
     let (sigma, estimated) = match settings.sigma {
         Sigma::Value(v) => (v, false),
-        Sigma::Auto(_) => (estimates.iter().map(|e| e.chosen()).sum::<f64>() / estimates.len() as f64, true),
+        Sigma::Auto(_) => (blind_sigma(&estimates), true),
     };
+    let planes = if working.len() == 3 { color::to_opponent(&working) } else { working.clone() };
+    Ok(Prepared { photon, working, planes, range, sigma, estimated, estimates })
+}
+
+pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
+    let Prepared { photon, working, planes: planes_in, range, sigma, estimated, estimates } = prepare(img, settings)?;
     progress.report(0.02, "preparing");
-    let planes_in = if working.len() == 3 { color::to_opponent(&working) } else { working.clone() };
     let sub = SubProgress { parent: progress, start: 0.05, span: 0.9 };
     let MethodOutput { planes, cut_map, work_units } = match settings.method {
         Method::PixelGraph => methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?,
@@ -90,15 +110,11 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
     })
 }
 
-/// Decode, denoise, encode: what both faces call with a file's bytes.
-pub fn denoise_bytes(
-    bytes: &[u8],
-    limits: &DecodeLimits,
-    settings: &Settings,
-    format: OutputFormat,
-    progress: &dyn Progress,
-) -> Result<(Vec<u8>, RunReport)> {
-    let img = codec::decode(bytes, limits)?;
-    let run = denoise(&img, settings, progress)?;
-    Ok((codec::encode(&run.image, format)?, run.report))
+/// Inspection: the patch group around pixel (x, y) exactly as a patch-graph run would match it
+/// (same noise model, colour transform and sigma), with the patch side.
+pub fn group_at(img: &Image, settings: &Settings, x: usize, y: usize) -> Result<(Group, usize)> {
+    let p = prepare(img, settings)?;
+    let s = &settings.patch_graph;
+    let group = methods::patch_graph::group_at(&p.planes[0], p.sigma, p.range, s, x, y)?;
+    Ok((group, methods::patch_graph::profile(s, p.sigma * 255.0 / p.range).patch))
 }

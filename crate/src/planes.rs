@@ -28,12 +28,6 @@ impl Plane {
         self.data[y * self.width + x]
     }
 
-    /// Sample with coordinates mirrored at the borders (half-sample symmetric), for filters.
-    #[inline]
-    pub fn get_mirrored(&self, x: isize, y: isize) -> f32 {
-        self.get(mirror(x, self.width), mirror(y, self.height))
-    }
-
     pub fn len(&self) -> usize {
         self.data.len()
     }

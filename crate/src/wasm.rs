@@ -3,7 +3,6 @@
 //! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
 
 use crate::codec::{self, DecodeLimits, OutputFormat};
-use crate::methods::patch_graph;
 use crate::planes::Image;
 use crate::{metrics, pipeline, preview, Error, Progress, Settings};
 use js_sys::{Function, Object, Reflect, Uint8Array};
@@ -69,8 +68,7 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     set(&obj, "height", &JsValue::from_f64(img.height as f64))?;
     set(&obj, "channels", &JsValue::from_f64(img.stored_channels() as f64))?;
     set(&obj, "bitDepth", &JsValue::from_f64(f64::from(img.depth.bits())))?;
-    let sigma = est.iter().map(|e| e.chosen()).sum::<f64>() / est.len() as f64;
-    set(&obj, "sigma", &JsValue::from_f64(sigma))?;
+    set(&obj, "sigma", &JsValue::from_f64(pipeline::blind_sigma(&est)))?;
     set(&obj, "rgba", &bytes(&preview::rgba8(&img)))?;
     Ok(obj.into())
 }
@@ -109,15 +107,7 @@ pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<String,
 pub fn group_at(input: &[u8], settings_json: &str, x: u32, y: u32, max_megapixels: u32) -> Result<String, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
-    let luma = if img.is_color() { crate::color::to_opponent(&img.channels).swap_remove(0) } else { img.channels[0].clone() };
-    let est = pipeline::estimate_noise(&img);
-    let sigma = match settings.sigma {
-        crate::settings::Sigma::Value(v) => v,
-        crate::settings::Sigma::Auto(_) => est.iter().map(|e| e.chosen()).sum::<f64>() / est.len() as f64,
-    };
-    let max = f64::from(img.max_value());
-    let g = patch_graph::group_at(&luma, sigma, max, &settings.patch_graph, x as usize, y as usize).map_err(js_err)?;
-    let patch = patch_graph::profile(&settings.patch_graph, sigma * 255.0 / max).patch;
+    let (g, patch) = pipeline::group_at(&img, &settings, x as usize, y as usize).map_err(js_err)?;
     let v = serde_json::json!({"positions": g.positions, "similarity": g.similarity, "patch": patch});
     Ok(v.to_string())
 }

@@ -187,8 +187,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
 pub fn noise(input: &Path, json_out: bool) -> CmdResult {
     let img = read_image(input, &DecodeLimits::default())?;
     let est = pipeline::estimate_noise(&img);
-    let chosen: Vec<f64> = est.iter().map(|e| e.chosen()).collect();
-    let sigma = chosen.iter().sum::<f64>() / chosen.len() as f64;
+    let sigma = pipeline::blind_sigma(&est);
     if json_out {
         let channels: Vec<_> = est
             .iter()
