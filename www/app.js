@@ -77,7 +77,7 @@ async function openSource(name, bytes, fromSample = false) {
     setImageSize(info.width, info.height);
     for (const p of app.panes) { p.result = null; p.saved = true; p.q('.save-png').disabled = true; p.showMetrics(); p.clearOverlay(); p.paint(); }
     fit(app.panes[0].viewport);
-    if (hadOne && app.reference) dropReference('the image changed; load its clean reference again');
+    if (hadOne && app.reference) dropReference('Reference set aside: the image changed. Load its clean reference to see PSNR and SSIM.');
   } catch (e) {
     $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info)}` : '';
     $('source-error').textContent = `${name}: ${e.message}`;
