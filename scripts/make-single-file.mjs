@@ -1,11 +1,11 @@
-// Writes the one-file page: node scripts/make-single-file.mjs WWW_DIR GLUE_NO_MODULES WASM OUT.html
+// Writes the one-file page: node scripts/make-single-file.mjs WWW_DIR GLUE_NO_MODULES WASM BASE_WASM OUT.html
 // Everything is inlined (CSS, the page's modules as one classic script, the worker as text that
 // becomes a blob: URL, the wasm as base64, the samples as base64), because from file:// Chromium
 // refuses module scripts, fetches and module workers. The CSP forbids every request.
 import { readFileSync, writeFileSync, readdirSync, mkdirSync } from 'node:fs';
 import { join, dirname } from 'node:path';
 
-const [www, gluePath, wasmPath, out] = process.argv.slice(2);
+const [www, gluePath, wasmPath, baseWasmPath, out] = process.argv.slice(2);
 const read = (f) => readFileSync(join(www, f), 'utf8');
 // ES module text to plain script text: drop import lines and `export` keywords.
 const unmodule = (src) => src.split('\n').filter((l) => !/^import\s/.test(l)).join('\n').replace(/^export\s+/gm, '');
@@ -18,17 +18,21 @@ const scoped = (f) => {
   const names = [...src.matchAll(/^export\s+(?:async\s+)?(?:function|class|const|let)\s+([A-Za-z_$][\w$]*)/gm)].map((m) => m[1]);
   return `// ---- ${f}\nconst { ${names.join(', ')} } = (() => {\n${unmodule(src)}\nreturn { ${names.join(', ')} };\n})();`;
 };
-const modules = ['tasks.js', 'view.js', 'zip.js', 'batch.js', 'panes.js', 'app.js'].map(scoped).join('\n');
-const bundle = modules.replace("new Worker(new URL('./worker.js', import.meta.url), { type: 'module' })", "null");
+const modules = ['tasks.js', 'stitch.js', 'view.js', 'zip.js', 'batch.js', 'panes.js', 'app.js'].map(scoped).join('\n');
+const bundle = modules.replace("new Worker(new URL(base ? './worker.js?baseline' : './worker.js', import.meta.url), { type: 'module' })", "null");
 if (bundle.includes('import.meta')) throw new Error('a module still uses import.meta');
 
-const wasm64 = readFileSync(wasmPath).toString('base64');
+// Both builds ride along (one glue serves both: same exports); the worker decodes the one it uses.
+const b64 = (p) => readFileSync(p).toString('base64');
 const worker = [
   readFileSync(gluePath, 'utf8'),
   unmodule(read('worker-core.js')),
-  `const wasmBytes = Uint8Array.from(atob('${wasm64}'), (c) => c.charCodeAt(0));`,
+  `const simdWasm = '${b64(wasmPath)}';`,
+  `const baseWasm = '${b64(baseWasmPath)}';`,
+  'const simd = simdSupported();',
+  'const wasmBytes = Uint8Array.from(atob(simd ? simdWasm : baseWasm), (c) => c.charCodeAt(0));',
   'wasm_bindgen.initSync({ module: wasmBytes });',
-  'installWorker(wasm_bindgen, Promise.resolve());',
+  "installWorker(wasm_bindgen, Promise.resolve(), simd ? 'simd128' : 'baseline');",
 ].join('\n');
 
 const samples = {};

@@ -62,7 +62,8 @@ const app = {
 
 function describe(info) {
   const kind = { 1: 'grey', 2: 'grey + alpha', 3: 'RGB', 4: 'RGBA' }[info.channels];
-  return `${info.width} × ${info.height}, ${kind}, ${info.bitDepth}-bit, estimated sigma ${info.sigma.toFixed(2)}`;
+  const shrunk = info.viewFactor > 1 ? `; shown at 1/${info.viewFactor} size, saved results are full size` : '';
+  return `${info.width} × ${info.height}, ${kind}, ${info.bitDepth}-bit, estimated sigma ${info.sigma.toFixed(2)}${shrunk}`;
 }
 
 async function openSource(name, bytes, fromSample = false) {
@@ -200,7 +201,9 @@ async function main() {
   wireInput();
   wireToolbar();
   wireBatch();
-  app.defaults = JSON.parse(await call('defaults'));
+  const started = await call('defaults');
+  app.defaults = JSON.parse(started.settings);
+  document.body.dataset.wasm = started.build;
   let stored = null;
   try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }
   const second = structuredClone(app.defaults);

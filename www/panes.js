@@ -1,5 +1,6 @@
 // One pane: a setting of its own, its run (progress, stop), its views and its metrics.
 import { task, call, Stopped } from './tasks.js';
+import { splitRun } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 
 const fields = {
@@ -109,10 +110,13 @@ export class Pane {
     const stage = this.q('.stage');
     bar.value = 0;
     stage.textContent = 'starting';
-    this.run = task('denoise', { bytes: src.bytes.slice(), settings: JSON.stringify(this.settings) }, (f, s) => {
-      bar.value = f;
-      stage.textContent = s;
-    });
+    const show = (f, s) => { bar.value = f; stage.textContent = s; };
+    const settings = JSON.stringify(this.settings);
+    // The patch-graph method splits into bands shared by all workers; the pixel-graph method's
+    // solvers need the whole graph, so it runs in one worker.
+    this.run = this.settings.method === 'patch-graph'
+      ? splitRun(src.bytes, settings, show)
+      : task('denoise', { bytes: src.bytes.slice(), settings }, show);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
@@ -121,7 +125,11 @@ export class Pane {
       this.result = r;
       this.saved = false;
       this.q('.save-png').disabled = false;
-      stage.textContent = `done in ${fmt(r.seconds)} s`;
+      const mib = (b) => `${Math.round(b / 1048576)} MiB`;
+      const peakBytes = r.peakWorkerBytes || r.memoryBytes;
+      const workers = r.workers || 1;
+      stage.textContent = `done in ${fmt(r.seconds)} s on ${workers} worker${workers > 1 ? 's' : ''}` +
+        (peakBytes ? `, at most ${mib(peakBytes)} each` : '');
       bar.value = 1;
       this.paint();
       await this.measure();
@@ -191,7 +199,7 @@ export class Pane {
   paint() {
     const src = this.app.source;
     if (!src) return;
-    const { width, height } = src.info;
+    const { viewWidth: width, viewHeight: height, viewFactor } = src.info;
     const r = this.result;
     const pick = { input: src.info.rgba, result: r && r.rgba, residual: r && r.residual, cuts: r && r.cuts };
     const rgba = pick[this.viewName] || src.info.rgba;
@@ -202,10 +210,15 @@ export class Pane {
       if (c.width !== width || c.height !== height) { c.width = width; c.height = height; }
     }
     this.canvas.getContext('2d').putImageData(new ImageData(new Uint8ClampedArray(rgba), width, height), 0, 0);
+    for (const c of [this.canvas, this.overlay]) c.dataset.factor = viewFactor;
     applyTo([this.canvas, this.overlay]);
   }
 
-  clearOverlay() { this.overlay.getContext('2d').clearRect(0, 0, this.overlay.width, this.overlay.height); }
+  clearOverlay() {
+    const ctx = this.overlay.getContext('2d');
+    ctx.setTransform(1, 0, 0, 1, 0, 0);
+    ctx.clearRect(0, 0, this.overlay.width, this.overlay.height);
+  }
 
   async showGroup(x, y) {
     const src = this.app.source;
@@ -214,7 +227,10 @@ export class Pane {
       const g = await call('group', { bytes: src.bytes.slice(), settings: JSON.stringify(this.settings), x, y });
       const ctx = this.overlay.getContext('2d');
       this.clearOverlay();
-      ctx.lineWidth = Math.max(1, 1 / view.scale);
+      // The overlay has the view's size; outlines are given in image pixels.
+      const f = src.info.viewFactor;
+      ctx.setTransform(1 / f, 0, 0, 1 / f, 0, 0);
+      ctx.lineWidth = Math.max(1, 1 / view.scale) * f;
       g.positions.forEach(([px, py], i) => {
         ctx.strokeStyle = i === 0 ? '#ffd400' : `rgba(0, 220, 255, ${0.35 + 0.65 * Math.max(0, g.similarity[i])})`;
         ctx.strokeRect(px + 0.5, py + 0.5, g.patch - 1, g.patch - 1);

@@ -1,61 +1,84 @@
-// Work off the main thread: each task gets a fresh worker (its own wasm instance), so stopping a
-// run is terminating its worker, and a crashed worker takes nothing else down. At most `limit`
-// workers run at once; later tasks wait their turn.
-const limit = Math.max(1, Math.min(navigator.hardwareConcurrency || 2, 4));
-let running = 0;
-const waiting = [];
-
-function acquire() {
-  if (running < limit) { running += 1; return Promise.resolve(); }
-  return new Promise((resolve) => waiting.push(resolve));
-}
-
-function release() {
-  const next = waiting.shift();
-  if (next) next(); else running -= 1;
-}
+// Work off the main thread: a pool of workers (one per core, at most 4), each with its own wasm
+// instance, reused from job to job. Stopping a job terminates its worker and a fresh one takes its
+// place later, so a stop is immediate and a crashed worker takes nothing else down. A worker whose
+// wasm memory grew large (memory never shrinks) is retired after its job to give it back.
+// `?workers=N` on the page's address sets the pool size (1 to 4), for comparisons and benchmarks.
+const query = new URLSearchParams(globalThis.location ? location.search : '');
+const asked = Math.floor(Number(query.get('workers')));
+export const poolSize = asked >= 1 ? Math.min(asked, 4) : Math.max(1, Math.min(navigator.hardwareConcurrency || 2, 4));
+const RETIRE_BYTES = 512 * 1024 * 1024;
+const idle = [];
+const queue = [];
+let alive = 0;
 
 export class Stopped extends Error {}
 
 // The one-file page sets globalThis.patchgraphWorkerUrl to a blob: URL of a classic worker; the
 // served page uses the module worker beside this file.
 function newWorker() {
+  alive += 1;
   if (globalThis.patchgraphWorkerUrl) return new Worker(globalThis.patchgraphWorkerUrl);
-  return new Worker(new URL('./worker.js', import.meta.url), { type: 'module' });
+  const base = query.get('wasm') === 'baseline';
+  return new Worker(new URL(base ? './worker.js?baseline' : './worker.js', import.meta.url), { type: 'module' });
 }
 
-// Returns {promise, stop}. `onProgress(fraction, stage)` receives progress messages.
-export function task(kind, payload = {}, onProgress = null) {
+function retire(worker) {
+  worker.terminate();
+  alive -= 1;
+}
+
+function pump() {
+  while (queue.length && (idle.length || alive < poolSize)) {
+    const job = queue.shift();
+    job.start(idle.pop() || newWorker());
+  }
+}
+
+// Returns {promise, stop}. `onProgress(fraction, stage)` receives the worker's progress; buffers
+// in `transfer` move to the worker instead of being copied.
+export function task(kind, payload = {}, onProgress = null, transfer = []) {
   let worker = null;
-  let finished = false;
+  let settled = false;
+  let resolve;
   let reject;
-  const promise = new Promise((resolve, rej) => {
-    reject = rej;
-    acquire().then(() => {
-      if (finished) { release(); return; }
-      worker = newWorker();
-      const done = () => { finished = true; worker.terminate(); release(); };
-      worker.onmessage = (e) => {
+  const promise = new Promise((res, rej) => { resolve = res; reject = rej; });
+  const job = {
+    start(w) {
+      worker = w;
+      const free = (keep) => {
+        worker.onmessage = null;
+        worker.onerror = null;
+        if (keep) idle.push(worker); else retire(worker);
+        worker = null;
+        pump();
+      };
+      w.onmessage = (e) => {
         const m = e.data;
         if ('progress' in m) { if (onProgress) onProgress(m.progress, m.stage); return; }
-        done();
-        if (m.ok) resolve(m.r); else rej(new Error(m.message));
+        settled = true;
+        free(m.ok && !(m.memoryBytes > RETIRE_BYTES));
+        if (m.ok) resolve(m.r); else reject(new Error(m.message));
       };
-      worker.onerror = (e) => {
+      w.onerror = (e) => {
         e.preventDefault();
-        done();
-        rej(new Error(`the computation stopped unexpectedly${e.message ? `: ${e.message}` : ''}`));
+        settled = true;
+        free(false);
+        reject(new Error(`the computation stopped unexpectedly${e.message ? `: ${e.message}` : ''}`));
       };
-      worker.postMessage({ kind, ...payload });
-    });
-  });
+      w.postMessage({ kind, ...payload }, transfer);
+    },
+  };
+  queue.push(job);
+  pump();
   const stop = () => {
-    if (finished) return;
-    finished = true;
-    if (worker) { worker.terminate(); release(); }
+    if (settled) return;
+    settled = true;
+    const i = queue.indexOf(job);
+    if (i >= 0) queue.splice(i, 1);
+    if (worker) { worker.onmessage = null; worker.onerror = null; retire(worker); worker = null; pump(); }
     reject(new Stopped('stopped'));
   };
   return { promise, stop };
 }
 
-export const call = (kind, payload) => task(kind, payload).promise;
+export const call = (kind, payload, transfer) => task(kind, payload, null, transfer).promise;

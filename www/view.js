@@ -8,9 +8,12 @@ function changed() {
   for (const fn of listeners) fn(view);
 }
 
+// The view is in image pixels; a canvas holding a shrunk view (data-factor f) is drawn f times larger.
 export function applyTo(canvases) {
-  const t = `translate(${view.x}px, ${view.y}px) scale(${view.scale})`;
-  for (const c of canvases) c.style.transform = t;
+  for (const c of canvases) {
+    const f = Number(c.dataset.factor) || 1;
+    c.style.transform = `translate(${view.x}px, ${view.y}px) scale(${view.scale * f})`;
+  }
 }
 
 export function zoomAt(factor, cx, cy) {

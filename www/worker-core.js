@@ -1,32 +1,46 @@
 // The worker's message handling, shared by the served page (worker.js, an ES module worker) and
 // the one-file page (a classic worker built from this text by scripts/make-single-file.mjs).
-// Messages: {kind, ...}; replies {ok, r} or {ok: false, message}; progress as {progress, stage}.
-export function installWorker(pg, ready) {
+// Messages: {kind, ...}; replies {ok, r, memoryBytes} or {ok: false, message}; progress as
+// {progress, stage}. memoryBytes is this worker's wasm memory, which only grows: its peak so far.
+
+// A module of one function using i8x16.splat and i8x16.popcnt: valid only where wasm SIMD is.
+const SIMD_PROBE = new Uint8Array([0, 97, 115, 109, 1, 0, 0, 0, 1, 5, 1, 96, 0, 1, 123, 3, 2, 1, 0, 10, 10, 1, 8, 0, 65, 0,
+  253, 15, 253, 98, 11]);
+export const simdSupported = () => WebAssembly.validate(SIMD_PROBE);
+
+// `build` names the wasm build in use ('simd128' or 'baseline'); every reply carries it.
+export function installWorker(pg, ready, build) {
   const MAX_MEGAPIXELS = 64;
-  const buffers = (r) => ['rgba', 'png', 'residual', 'cuts'].filter((k) => r && r[k]).map((k) => r[k].buffer);
+  const keys = ['rgba', 'png', 'residual', 'cuts', 'planes', 'num', 'den'];
+  const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k]).map((k) => r[k].buffer);
+  const progress = (fraction, stage) => self.postMessage({ progress: fraction, stage });
   self.onmessage = async (event) => {
     const m = event.data;
     try {
       const exports = await ready;
+      const start = performance.now();
       let r;
       switch (m.kind) {
-        case 'defaults': r = pg.defaultSettings(); break;
+        case 'defaults': r = { settings: pg.defaultSettings(), build }; break;
         case 'check': r = pg.checkSettings(m.json); break;
         case 'open': r = pg.open(m.bytes, MAX_MEGAPIXELS); break;
-        case 'denoise': {
-          const start = performance.now();
-          r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, (fraction, stage) => self.postMessage({ progress: fraction, stage }));
-          r.seconds = (performance.now() - start) / 1000;
-          // The wasm memory only grows, so after a run it is this worker's peak.
-          const memory = (exports && exports.memory) || (pg.__wasm && pg.__wasm.memory);
-          r.memoryBytes = memory ? memory.buffer.byteLength : null;
+        case 'denoise': r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, progress); break;
+        case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, m.bandRows); break;
+        case 'band':
+          r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.noisy, m.basic, progress);
           break;
-        }
+        case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, MAX_MEGAPIXELS); break;
         case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;
         case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, MAX_MEGAPIXELS)); break;
         default: throw new Error(`unknown request ${m.kind}`);
       }
-      self.postMessage({ ok: true, r }, buffers(r));
+      const memory = (exports && exports.memory) || (pg.__wasm && pg.__wasm.memory);
+      const memoryBytes = memory ? memory.buffer.byteLength : null;
+      if (r && typeof r === 'object') {
+        r.seconds = (performance.now() - start) / 1000;
+        r.memoryBytes = memoryBytes;
+      }
+      self.postMessage({ ok: true, r, memoryBytes, build }, buffers(r));
     } catch (err) {
       self.postMessage({ ok: false, message: String((err && err.message) || err) });
     }

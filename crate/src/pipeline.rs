@@ -49,19 +49,18 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
     estimates.iter().map(|e| e.chosen()).sum::<f64>() / estimates.len().max(1) as f64
 }
 
-/// An image made ready for a method: the noise model applied (`working`), then the colour
-/// transform (`planes`, luminance first), with the sigma and range the method works with.
-struct Prepared {
-    photon: PhotonNoise,
-    working: Vec<Plane>,
-    planes: Vec<Plane>,
-    range: f64,
-    sigma: f64,
-    estimated: bool,
-    estimates: Vec<NoiseEstimate>,
+/// An image made ready for a method: the noise model applied (`working`), with the sigma and
+/// range the method works with. [`method_planes`] gives the planes a method takes.
+pub struct Prepared {
+    pub photon: PhotonNoise,
+    pub working: Vec<Plane>,
+    pub range: f64,
+    pub sigma: f64,
+    pub estimated: bool,
+    pub estimates: Vec<NoiseEstimate>,
 }
 
-fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
+pub fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
     settings.validate()?;
     let photon = PhotonNoise { gain: settings.poisson_gain, read: settings.poisson_read_noise };
     let (working, range) = match settings.noise {
@@ -76,26 +75,43 @@ fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
         Sigma::Value(v) => (v, false),
         Sigma::Auto(_) => (blind_sigma(&estimates), true),
     };
-    let planes = if working.len() == 3 { color::to_opponent(&working) } else { working.clone() };
-    Ok(Prepared { photon, working, planes, range, sigma, estimated, estimates })
+    Ok(Prepared { photon, working, range, sigma, estimated, estimates })
+}
+
+/// The planes a method works on: the working planes, colour ones in the opponent space
+/// (luminance first).
+pub fn method_planes(p: &Prepared) -> Vec<Plane> {
+    if p.working.len() == 3 { color::to_opponent(&p.working) } else { p.working.clone() }
 }
 
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
-    let Prepared { photon, working, planes: planes_in, range, sigma, estimated, estimates } = prepare(img, settings)?;
+    let prepared = prepare(img, settings)?;
+    let planes_in = method_planes(&prepared);
     progress.report(0.02, "preparing");
     let sub = SubProgress { parent: progress, start: 0.05, span: 0.9 };
-    let MethodOutput { planes, cut_map, work_units } = match settings.method {
+    let (sigma, range) = (prepared.sigma, prepared.range);
+    let output = match settings.method {
         Method::PixelGraph => methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?,
         Method::PatchGraph => methods::patch_graph::denoise(&planes_in, sigma, range, &settings.patch_graph, &sub)?,
     };
+    drop(planes_in);
+    let out = finish(img, settings, prepared, output);
+    progress.report(1.0, "done");
+    Ok(out)
+}
+
+/// The method's planes back to the image: inverse colour transform and noise model, residual checks.
+pub fn finish(img: &Image, settings: &Settings, prepared: Prepared, output: MethodOutput) -> RunOutput {
+    let Prepared { photon, working, sigma, estimated, estimates, .. } = prepared;
+    let MethodOutput { planes, cut_map, work_units } = output;
     let planes = if planes.len() == 3 { color::from_opponent(&planes) } else { planes };
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
+    drop(working);
     let out_planes = match settings.noise {
         NoiseModel::Gaussian => planes,
         NoiseModel::Poisson => map_planes(&planes, |d| photon.inverse(d)),
     };
-    progress.report(1.0, "done");
-    Ok(RunOutput {
+    RunOutput {
         image: img.with_channels(out_planes),
         report: RunReport {
             method: settings.method.name(),
@@ -107,14 +123,25 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
             work_units,
         },
         cut_map,
-    })
+    }
+}
+
+/// Sigma for drawing the residual (input minus result) in the input's grey levels: the sigma
+/// used, or for photon noise, whose sigma lives in the stabilised domain, the input's own blind
+/// estimate.
+pub fn residual_view_sigma(img: &Image, settings: &Settings, report: &RunReport) -> f64 {
+    match settings.noise {
+        NoiseModel::Gaussian => report.sigma_used,
+        NoiseModel::Poisson => blind_sigma(&estimate_noise(img)),
+    }
 }
 
 /// Inspection: the patch group around pixel (x, y) exactly as a patch-graph run would match it
 /// (same noise model, colour transform and sigma), with the patch side.
 pub fn group_at(img: &Image, settings: &Settings, x: usize, y: usize) -> Result<(Group, usize)> {
     let p = prepare(img, settings)?;
+    let luma = method_planes(&p).swap_remove(0);
     let s = &settings.patch_graph;
-    let group = methods::patch_graph::group_at(&p.planes[0], p.sigma, p.range, s, x, y)?;
+    let group = methods::patch_graph::group_at(&luma, p.sigma, p.range, s, x, y)?;
     Ok((group, methods::patch_graph::profile(s, p.sigma * 255.0 / p.range).patch))
 }

@@ -3,9 +3,13 @@
 //! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
 
 use crate::codec::{self, DecodeLimits, OutputFormat};
-use crate::planes::Image;
+use crate::methods::bands::{self, Band};
+use crate::methods::patch_graph::Stage;
+use crate::methods::MethodOutput;
+use crate::pipeline::RunOutput;
+use crate::planes::{Image, Plane};
 use crate::{metrics, pipeline, preview, Error, Progress, Settings};
-use js_sys::{Function, Object, Reflect, Uint8Array};
+use js_sys::{Float32Array, Float64Array, Function, Object, Reflect, Uint8Array};
 use wasm_bindgen::prelude::*;
 
 fn js_err(e: Error) -> JsError {
@@ -18,6 +22,24 @@ fn set(obj: &Object, key: &str, value: &JsValue) -> Result<(), JsError> {
 
 fn bytes(v: &[u8]) -> JsValue {
     Uint8Array::from(v).into()
+}
+
+fn num(v: usize) -> JsValue {
+    JsValue::from_f64(v as f64)
+}
+
+/// Planes laid end to end in one array (what crosses to JS and back).
+fn flatten(planes: &[Plane]) -> Vec<f32> {
+    planes.iter().flat_map(|p| p.data.iter().copied()).collect()
+}
+
+/// Splits an array of whole planes of `width` x `height`; the length must fit exactly.
+fn unflatten(data: &[f32], width: usize, height: usize) -> Result<Vec<Plane>, JsError> {
+    let n = width * height;
+    if n == 0 || data.len() % n != 0 || data.is_empty() {
+        return Err(JsError::new("the planes sent to the worker do not match the image size"));
+    }
+    Ok(data.chunks(n).map(|c| Plane { width, height, data: c.to_vec() }).collect())
 }
 
 /// Reports progress through a JS callback (fraction, stage). Cancelling is done by terminating
@@ -69,7 +91,35 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     set(&obj, "channels", &JsValue::from_f64(img.stored_channels() as f64))?;
     set(&obj, "bitDepth", &JsValue::from_f64(f64::from(img.depth.bits())))?;
     set(&obj, "sigma", &JsValue::from_f64(pipeline::blind_sigma(&est)))?;
-    set(&obj, "rgba", &bytes(&preview::rgba8(&img)))?;
+    set_view_size(&obj, &img)?;
+    set(&obj, "rgba", &bytes(&preview::rgba8(&img, preview::factor(img.width, img.height))))?;
+    Ok(obj.into())
+}
+
+/// The views' shrink factor and size (views of large images are smaller than the image).
+fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
+    let f = preview::factor(img.width, img.height);
+    let (vw, vh) = preview::view_size(img.width, img.height, f);
+    set(obj, "viewFactor", &num(f))?;
+    set(obj, "viewWidth", &num(vw))?;
+    set(obj, "viewHeight", &num(vh))?;
+    Ok(f)
+}
+
+/// What the page gets from a finished run: PNG at full depth, views, report.
+fn run_result(img: &Image, settings: &Settings, run: &RunOutput) -> Result<JsValue, JsError> {
+    let png = codec::encode(&run.image, OutputFormat::Png).map_err(js_err)?;
+    let obj = Object::new();
+    let f = set_view_size(&obj, img)?;
+    set(&obj, "png", &bytes(&png))?;
+    set(&obj, "rgba", &bytes(&preview::rgba8(&run.image, f)))?;
+    let sigma = pipeline::residual_view_sigma(img, settings, &run.report);
+    set(&obj, "residual", &bytes(&preview::residual_rgba8(img, &run.image, sigma, f)))?;
+    if let Some(map) = &run.cut_map {
+        set(&obj, "cuts", &bytes(&preview::unit_plane_rgba8(map, f)))?;
+    }
+    let report = serde_json::to_string(&run.report).map_err(|e| JsError::new(&e.to_string()))?;
+    set(&obj, "report", &JsValue::from_str(&report))?;
     Ok(obj.into())
 }
 
@@ -80,17 +130,81 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let run = pipeline::denoise(&img, &settings, &JsProgress(on_progress)).map_err(js_err)?;
-    let png = codec::encode(&run.image, OutputFormat::Png).map_err(js_err)?;
+    run_result(&img, &settings, &run)
+}
+
+/// First step of a patch-graph run split across workers: the method's planes (end to end), the
+/// sigma and range, and the bands, each one job for a worker ([`run_band`]). No bands when there
+/// is nothing to remove (sigma 0).
+#[wasm_bindgen(js_name = prepareRun)]
+pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_rows: u32) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let img = decode(input, max_megapixels)?;
+    let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
+    let planes = pipeline::method_planes(&p);
+    let plan: Vec<Band> = if p.sigma > 0.0 {
+        let stage = Stage::new(&planes, None, 0, img.height, p.sigma, p.range, &settings.patch_graph).map_err(js_err)?;
+        bands::plan(img.width, img.height, &stage.profile(), band_rows as usize)
+    } else {
+        Vec::new()
+    };
     let obj = Object::new();
-    set(&obj, "png", &bytes(&png))?;
-    set(&obj, "rgba", &bytes(&preview::rgba8(&run.image)))?;
-    set(&obj, "residual", &bytes(&preview::residual_rgba8(&img, &run.image, run.report.sigma_used)))?;
-    if let Some(map) = &run.cut_map {
-        set(&obj, "cuts", &bytes(&preview::unit_plane_rgba8(map)))?;
-    }
-    let report = serde_json::to_string(&run.report).map_err(|e| JsError::new(&e.to_string()))?;
-    set(&obj, "report", &JsValue::from_str(&report))?;
+    set(&obj, "width", &num(img.width))?;
+    set(&obj, "height", &num(img.height))?;
+    set(&obj, "channels", &num(planes.len()))?;
+    set(&obj, "sigma", &JsValue::from_f64(p.sigma))?;
+    set(&obj, "range", &JsValue::from_f64(p.range))?;
+    set(&obj, "planes", &Float32Array::from(flatten(&planes).as_slice()).into())?;
+    set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| JsError::new(&e.to_string()))?))?;
     Ok(obj.into())
+}
+
+/// One band of one stage: `noisy` (and for stage 2 `basic`, else empty) hold the band's window,
+/// rows [y0, y1) of every plane end to end. Returns the band's sums, {num (planes end to end), den}.
+#[wasm_bindgen(js_name = runBand)]
+#[allow(clippy::too_many_arguments)]
+pub fn run_band(
+    settings_json: &str,
+    sigma: f64,
+    range: f64,
+    width: u32,
+    full_height: u32,
+    band: &str,
+    noisy: &[f32],
+    basic: &[f32],
+    on_progress: &Function,
+) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let band: Band = serde_json::from_str(band).map_err(|_| JsError::new("the band description is not valid"))?;
+    if band.y1 <= band.y0 || band.y1 > full_height as usize {
+        return Err(JsError::new("the band lies outside the image"));
+    }
+    let (w, rows) = (width as usize, band.y1 - band.y0);
+    let noisy = unflatten(noisy, w, rows)?;
+    let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
+    let stage = Stage::new(&noisy, basic.as_deref(), band.y0, full_height as usize, sigma, range, &settings.patch_graph)
+        .map_err(js_err)?;
+    let acc = stage.run_band(&band, &JsProgress(on_progress)).map_err(js_err)?;
+    let all: Vec<f64> = acc.num.iter().flat_map(|n| n.iter().copied()).collect();
+    let obj = Object::new();
+    set(&obj, "num", &Float64Array::from(all.as_slice()).into())?;
+    set(&obj, "den", &Float64Array::from(acc.den.as_slice()).into())?;
+    Ok(obj.into())
+}
+
+/// Last step of a split run: the method's output planes (end to end) back to an image, as
+/// [`denoise`] returns it.
+#[wasm_bindgen(js_name = finishRun)]
+pub fn finish_run(input: &[u8], settings_json: &str, planes: &[f32], max_megapixels: u32) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let img = decode(input, max_megapixels)?;
+    let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
+    let planes = unflatten(planes, img.width, img.height)?;
+    if planes.len() != p.working.len() {
+        return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
+    }
+    let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
+    run_result(&img, &settings, &run)
 }
 
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.

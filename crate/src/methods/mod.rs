@@ -1,6 +1,7 @@
 //! Denoisers over planes. Each takes the working planes (grey or opponent colour, luminance first),
 //! the noise sigma in the planes' grey levels and the full range, and reports progress.
 
+pub mod bands;
 pub mod patch_graph;
 pub mod pixel_graph;
 

@@ -6,8 +6,11 @@
 //!
 //! References are processed in tiles; each tile reads its crop of the image (the references plus
 //! the search radius and a patch) and returns an accumulator that is summed into the result, so any
-//! tiling gives the same output up to float rounding, and tiles can run in parallel.
+//! tiling gives the same output up to float rounding, and tiles can run in parallel. Tiles are
+//! gathered in bands of rows (see [`super::bands`]), which bound memory and are the unit of work
+//! the page hands to its workers.
 
+use super::bands::{self, Assembler, Band};
 use super::MethodOutput;
 use crate::error::{Error, Result};
 use crate::patch::aggregate::{kaiser_window, Accumulator};
@@ -50,7 +53,7 @@ pub fn profile(s: &PatchGraphSettings, sigma8: f64) -> Profile {
 }
 
 /// Reference corners along one axis: every `step`, plus the last position so borders are covered.
-fn ref_axis(n: usize, k: usize, step: usize) -> Vec<usize> {
+pub(crate) fn ref_axis(n: usize, k: usize, step: usize) -> Vec<usize> {
     let last = n - k;
     let mut v: Vec<usize> = (0..=last).step_by(step.max(1)).collect();
     if v.last() != Some(&last) {
@@ -98,11 +101,15 @@ fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise_var: f6
     w
 }
 
-/// Shared, read-only data of one stage.
-struct Stage<'a> {
+/// Shared, read-only data of one stage. The planes are a window of full-width rows
+/// [y0, y0 + height) of an image `full_height` rows tall: the whole image natively, one band's
+/// rows in a page worker.
+pub struct Stage<'a> {
     noisy: &'a [Plane],
     /// The basic estimate (stage 2) or None (stage 1).
     basic: Option<&'a [Plane]>,
+    y0: usize,
+    full_height: usize,
     sigma: f64,
     range: f64,
     prof: Profile,
@@ -111,23 +118,69 @@ struct Stage<'a> {
     lf: Vec<usize>,
 }
 
-impl Stage<'_> {
+impl<'a> Stage<'a> {
+    /// Stage 1 when `basic` is None, stage 2 otherwise. Checks the image is large enough.
+    pub fn new(
+        noisy: &'a [Plane],
+        basic: Option<&'a [Plane]>,
+        y0: usize,
+        full_height: usize,
+        sigma: f64,
+        range: f64,
+        s: &PatchGraphSettings,
+    ) -> Result<Self> {
+        let first = noisy.first().ok_or_else(|| Error::Internal("no channels to denoise".into()))?;
+        let prof = profile(s, sigma * 255.0 / range);
+        if first.width < prof.patch || full_height < prof.patch {
+            return Err(Error::TooSmall(format!(
+                "the patch-graph method needs at least {0} x {0} pixels; use the pixel-graph method",
+                prof.patch
+            )));
+        }
+        let rows_ok = y0 + first.height <= full_height
+            && noisy.iter().chain(basic.into_iter().flatten()).all(|p| p.width == first.width && p.height == first.height);
+        if !rows_ok || basic.is_some_and(|b| b.len() != noisy.len()) {
+            return Err(Error::Internal("the planes of a stage do not line up".into()));
+        }
+        Ok(Stage {
+            noisy,
+            basic,
+            y0,
+            full_height,
+            sigma,
+            range,
+            prof,
+            dct: dct_matrix(prof.patch),
+            window: kaiser_window(prof.patch, prof.beta),
+            lf: low_freq_indices(prof.patch),
+        })
+    }
+
+    pub fn profile(&self) -> Profile {
+        self.prof
+    }
+
     fn group_size(&self) -> usize {
         if self.basic.is_some() { self.prof.group2 } else { self.prof.group1 }
     }
 
-    /// Processes the references of one tile; returns its accumulator (crop coordinates inside).
+    /// Processes the references of one tile (image coordinates); returns its accumulator, in image
+    /// coordinates, over the tile's crop (crop coordinates inside).
     fn tile(&self, refs: &[(usize, usize)], progress: &dyn Progress) -> Result<Accumulator> {
-        let (w, h) = (self.noisy[0].width, self.noisy[0].height);
+        let w = self.noisy[0].width;
         let k = self.prof.patch;
         let s = self.prof.search;
         let (rx0, ry0) = refs.iter().fold((usize::MAX, usize::MAX), |a, r| (a.0.min(r.0), a.1.min(r.1)));
         let (rx1, ry1) = refs.iter().fold((0, 0), |a, r| (a.0.max(r.0), a.1.max(r.1)));
         let (x0, y0) = (rx0.saturating_sub(s), ry0.saturating_sub(s));
-        let (x1, y1) = ((rx1 + s + k).min(w), (ry1 + s + k).min(h));
+        let (x1, y1) = ((rx1 + s + k).min(w), (ry1 + s + k).min(self.full_height));
         let (cw, ch) = (x1 - x0, y1 - y0);
-        let noisy: Vec<Plane> = self.noisy.iter().map(|p| crop(p, x0, y0, cw, ch)).collect();
-        let basic: Option<Vec<Plane>> = self.basic.map(|b| b.iter().map(|p| crop(p, x0, y0, cw, ch)).collect());
+        if y0 < self.y0 || y1 > self.y0 + self.noisy[0].height {
+            return Err(Error::Internal("a tile reaches outside its band's rows".into()));
+        }
+        let wy = y0 - self.y0;
+        let noisy: Vec<Plane> = self.noisy.iter().map(|p| crop(p, x0, wy, cw, ch)).collect();
+        let basic: Option<Vec<Plane>> = self.basic.map(|b| b.iter().map(|p| crop(p, x0, wy, cw, ch)).collect());
         let guide = basic.as_ref().map_or(&noisy[0], |b| &b[0]);
         let local: Vec<(usize, usize)> = refs.iter().map(|&(x, y)| (x - x0, y - y0)).collect();
         let mp = MatchParams {
@@ -243,66 +296,65 @@ impl Stage<'_> {
             acc.add(x, y, k, &refs, &self.window, weight);
         }
     }
-}
 
-/// Runs the tiles of one stage (in parallel natively) and returns the aggregated planes.
-fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
-    let (w, h) = (stage.noisy[0].width, stage.noisy[0].height);
-    let k = stage.prof.patch;
-    let xs = ref_axis(w, k, stage.prof.step);
-    let ys = ref_axis(h, k, stage.prof.step);
-    let t = stage.prof.tile.max(1);
-    let mut tiles: Vec<Vec<(usize, usize)>> = Vec::new();
-    for ty in (0..h).step_by(t) {
-        for tx in (0..w).step_by(t) {
-            let refs: Vec<(usize, usize)> = ys
-                .iter()
-                .filter(|&&y| y >= ty && y < ty + t)
-                .flat_map(|&y| xs.iter().filter(|&&x| x >= tx && x < tx + t).map(move |&x| (x, y)))
-                .collect();
-            if !refs.is_empty() {
-                tiles.push(refs);
+    /// Runs the tiles of one band (in parallel natively) and returns the band's accumulator over
+    /// its rows [band.y0, band.y1), full width.
+    pub fn run_band(&self, band: &Band, progress: &dyn Progress) -> Result<Accumulator> {
+        let w = self.noisy[0].width;
+        let k = self.prof.patch;
+        let xs = ref_axis(w, k, self.prof.step);
+        let ys: Vec<usize> = ref_axis(self.full_height, k, self.prof.step)
+            .into_iter()
+            .filter(|&y| y >= band.ref_y0 && y < band.ref_y1)
+            .collect();
+        let t = self.prof.tile.max(1);
+        let mut tiles: Vec<Vec<(usize, usize)>> = Vec::new();
+        for ty in (band.ref_y0..band.ref_y1).step_by(t) {
+            for tx in (0..w).step_by(t) {
+                let refs: Vec<(usize, usize)> = ys
+                    .iter()
+                    .filter(|&&y| y >= ty && y < ty + t)
+                    .flat_map(|&y| xs.iter().filter(|&&x| x >= tx && x < tx + t).map(move |&x| (x, y)))
+                    .collect();
+                if !refs.is_empty() {
+                    tiles.push(refs);
+                }
             }
         }
-    }
-    let done = std::sync::atomic::AtomicUsize::new(0);
-    let total = tiles.len();
-    let one = |refs: &Vec<(usize, usize)>| -> Result<Accumulator> {
-        let acc = stage.tile(refs, &crate::progress::NoProgress)?;
-        let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
-        check(progress)?;
-        progress.report(d as f32 / total as f32, "filtering groups");
+        let done = std::sync::atomic::AtomicUsize::new(0);
+        let total = tiles.len();
+        let one = |refs: &Vec<(usize, usize)>| -> Result<Accumulator> {
+            let acc = self.tile(refs, &crate::progress::NoProgress)?;
+            let d = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+            check(progress)?;
+            progress.report(d as f32 / total as f32, "filtering groups");
+            Ok(acc)
+        };
+        #[cfg(feature = "parallel")]
+        let parts: Vec<Result<Accumulator>> = {
+            use rayon::prelude::*;
+            tiles.par_iter().map(one).collect()
+        };
+        #[cfg(not(feature = "parallel"))]
+        let parts: Vec<Result<Accumulator>> = tiles.iter().map(one).collect();
+        let mut acc = Accumulator::new(0, band.y0, w, band.y1 - band.y0, self.noisy.len());
+        for part in parts {
+            acc.absorb(&part?);
+        }
         Ok(acc)
-    };
-    #[cfg(feature = "parallel")]
-    let parts: Vec<Result<Accumulator>> = {
-        use rayon::prelude::*;
-        tiles.par_iter().map(one).collect()
-    };
-    #[cfg(not(feature = "parallel"))]
-    let parts: Vec<Result<Accumulator>> = tiles.iter().map(one).collect();
-    let mut total_acc = Accumulator::new(0, 0, w, h, stage.noisy.len());
-    for part in parts {
-        total_acc.absorb(&part?);
     }
-    Ok((0..stage.noisy.len())
-        .map(|ch| Plane {
-            width: w,
-            height: h,
-            data: (0..w * h)
-                .map(|i| {
-                    if total_acc.den[i] > 0.0 {
-                        // Rounded to 1/1024 grey level: tilings differ only in the order of f64
-                        // additions, far below this step, so the stage-2 matching sees identical
-                        // basic estimates whatever the tiling.
-                        ((total_acc.num[ch][i] / total_acc.den[i]) * 1024.0).round() as f32 / 1024.0
-                    } else {
-                        stage.noisy[ch].data[i]
-                    }
-                })
-                .collect(),
-        })
-        .collect())
+}
+
+/// Runs one stage over the whole image band by band, assembling rows as soon as no later band
+/// can add to them, so only a few bands' accumulators exist at once.
+fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
+    let plan = bands::plan(stage.noisy[0].width, stage.full_height, &stage.prof, bands::NATIVE_BAND_ROWS);
+    let mut assembler = Assembler::new(&plan, stage.noisy);
+    for (i, band) in plan.iter().enumerate() {
+        let sub = SubProgress { parent: progress, start: i as f32 / plan.len() as f32, span: 1.0 / plan.len() as f32 };
+        assembler.add(i, stage.run_band(band, &sub)?)?;
+    }
+    assembler.finish()
 }
 
 pub fn denoise(planes: &[Plane], sigma: f64, max_value: f64, s: &PatchGraphSettings, progress: &dyn Progress) -> Result<MethodOutput> {
@@ -310,26 +362,10 @@ pub fn denoise(planes: &[Plane], sigma: f64, max_value: f64, s: &PatchGraphSetti
     if sigma <= 0.0 {
         return Ok(MethodOutput { planes: planes.to_vec(), cut_map: None, work_units: 0 });
     }
-    let prof = profile(s, sigma * 255.0 / max_value);
-    if first.width < prof.patch || first.height < prof.patch {
-        return Err(Error::TooSmall(format!(
-            "the patch-graph method needs at least {0} x {0} pixels; use the pixel-graph method",
-            prof.patch
-        )));
-    }
-    let mut stage = Stage {
-        noisy: planes,
-        basic: None,
-        sigma,
-        range: max_value,
-        prof,
-        dct: dct_matrix(prof.patch),
-        window: kaiser_window(prof.patch, prof.beta),
-        lf: low_freq_indices(prof.patch),
-    };
-    let basic = run_stage(&stage, &SubProgress { parent: progress, start: 0.0, span: 0.45 })?;
-    stage.basic = Some(&basic);
-    let out = run_stage(&stage, &SubProgress { parent: progress, start: 0.45, span: 0.55 })?;
+    let stage1 = Stage::new(planes, None, 0, first.height, sigma, max_value, s)?;
+    let basic = run_stage(&stage1, &SubProgress { parent: progress, start: 0.0, span: 0.45 })?;
+    let stage2 = Stage::new(planes, Some(&basic), 0, first.height, sigma, max_value, s)?;
+    let out = run_stage(&stage2, &SubProgress { parent: progress, start: 0.45, span: 0.55 })?;
     progress.report(1.0, "done");
     Ok(MethodOutput { planes: out, cut_map: None, work_units: 0 })
 }

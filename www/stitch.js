@@ -1,0 +1,136 @@
+// One patch-graph run split across the worker pool: a worker prepares the image (noise model,
+// colour transform, sigma, the plan of bands); each band of each stage is a job for any worker,
+// given only its window of rows; the bands' sums are assembled here into rows; a worker turns the
+// final planes into the result. The arithmetic is the same whatever the number of workers, so
+// the result is identical with 1 or 4 of them.
+import { task, poolSize, Stopped } from './tasks.js';
+
+// Reference rows per band: the native run's band height (methods::bands::NATIVE_BAND_ROWS), so
+// page and command line add the same numbers in the same order.
+export const BAND_ROWS = 64;
+
+// Rust's `((num / den) * 1024.0).round() as f32 / 1024.0`: round half away from zero, then to f32.
+function round1024(v) {
+  const q = v * 1024;
+  return Math.fround(q < 0 ? -Math.round(-q) : Math.round(q)) / 1024;
+}
+
+// Mirrors methods::bands::Assembler: rows are written once every band touching them is in.
+class Assembler {
+  constructor(bands, width, height, channels, fallback) {
+    Object.assign(this, { bands, width, height, channels, fallback });
+    this.out = new Float32Array(channels * width * height);
+    this.parts = bands.map(() => null);
+    this.received = bands.map(() => false);
+    this.next = 0;
+  }
+
+  add(i, num, den) {
+    const b = this.bands[i];
+    this.parts[i] = { y0: b.y0, y1: b.y1, rows: b.y1 - b.y0, num, den };
+    this.received[i] = true;
+    const pending = this.received.indexOf(false);
+    const limit = pending < 0 ? this.height : this.bands[pending].y0;
+    for (; this.next < limit; this.next += 1) this.writeRow(this.next);
+    this.parts = this.parts.map((p) => (p && p.y1 <= this.next ? null : p));
+  }
+
+  writeRow(y) {
+    const { width: w, out, fallback } = this;
+    const plane = w * this.height;
+    const cover = this.parts.filter((p) => p && y >= p.y0 && y < p.y1);
+    for (let x = 0; x < w; x += 1) {
+      let den = 0;
+      for (const p of cover) den += p.den[(y - p.y0) * w + x];
+      for (let c = 0; c < this.channels; c += 1) {
+        const i = c * plane + y * w + x;
+        if (den > 0) {
+          let num = 0;
+          for (const p of cover) num += p.num[c * p.rows * w + (y - p.y0) * w + x];
+          out[i] = round1024(num / den);
+        } else {
+          out[i] = fallback[i];
+        }
+      }
+    }
+  }
+}
+
+// Rows [y0, y1) of every plane, end to end (a band's window).
+function windowOf(planes, width, height, channels, y0, y1) {
+  const rows = (y1 - y0) * width;
+  const win = new Float32Array(channels * rows);
+  for (let c = 0; c < channels; c += 1) win.set(planes.subarray(c * width * height + y0 * width, c * width * height + y1 * width), c * rows);
+  return win;
+}
+
+// Returns {promise, stop}; the promise gives what the single-worker 'denoise' gives, plus
+// `workers` (at most this many ran at once) and `peakWorkerBytes`.
+export function splitRun(bytes, settings, onProgress) {
+  const jobs = new Set();
+  let stopped = false;
+  let peak = 0;
+  const run = (kind, payload, transfer = [], onP = null) => {
+    if (stopped) return Promise.reject(new Stopped('stopped'));
+    const t = task(kind, payload, onP, transfer);
+    jobs.add(t);
+    return t.promise.then((r) => { jobs.delete(t); peak = Math.max(peak, r.memoryBytes || 0); return r; },
+      (e) => { jobs.delete(t); throw e; });
+  };
+
+  // One stage: bands go out as workers free up (at most a few ahead of the first unfinished band,
+  // which bounds the sums held here), and rows are assembled as they complete.
+  const stage = (prep, bands, basic, start, span, name) => new Promise((resolve, reject) => {
+    const { width, height, channels } = prep;
+    const asm = new Assembler(bands, width, height, channels, prep.planes);
+    const part = bands.map(() => 0);
+    let sent = 0;
+    let done = 0;
+    let failed = false;
+    const report = () => onProgress(start + span * part.reduce((a, b) => a + b, 0) / bands.length, `${name}: ${done} of ${bands.length} bands`);
+    const send = () => {
+      const first = asm.received.indexOf(false);
+      while (!failed && sent < bands.length && sent - done < poolSize && sent <= first + 4 * poolSize) {
+        const i = sent;
+        const b = bands[i];
+        sent += 1;
+        const noisy = windowOf(prep.planes, width, height, channels, b.y0, b.y1);
+        const basicWin = basic ? windowOf(basic, width, height, channels, b.y0, b.y1) : new Float32Array(0);
+        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), noisy, basic: basicWin },
+          [noisy.buffer, basicWin.buffer], (f) => { part[i] = f; report(); })
+          .then((r) => {
+            if (failed) return;
+            part[i] = 1;
+            done += 1;
+            asm.add(i, r.num, r.den);
+            report();
+            if (done === bands.length) resolve(asm.out); else send();
+          }, (e) => { if (!failed) { failed = true; reject(e); } });
+      }
+    };
+    send();
+  });
+
+  const promise = (async () => {
+    const t0 = performance.now();
+    onProgress(0, 'preparing');
+    const prep = await run('prepare', { bytes: bytes.slice(), settings, bandRows: BAND_ROWS });
+    const bands = JSON.parse(prep.bands);
+    let planes = prep.planes;
+    if (bands.length) {
+      const basic = await stage(prep, bands, null, 0.05, 0.45, 'basic estimate');
+      planes = await stage(prep, bands, basic, 0.5, 0.45, 'final estimate');
+    }
+    onProgress(0.95, 'writing the result');
+    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, [planes.buffer]);
+    r.seconds = (performance.now() - t0) / 1000;
+    r.workers = Math.max(1, Math.min(poolSize, bands.length));
+    r.peakWorkerBytes = peak;
+    return r;
+  })();
+  const stop = () => {
+    stopped = true;
+    for (const t of jobs) t.stop();
+  };
+  return { promise, stop };
+}
