@@ -1,6 +1,7 @@
 // Many files with one setting: a queue with per-file progress and an overall bar, stop, per-file
 // errors that do not stop the others, and the results plus a report CSV in one ZIP.
 import { task, Stopped } from './tasks.js';
+import { splitRun } from './stitch.js';
 import { makeZip } from './zip.js';
 
 const $ = (id) => document.getElementById(id);
@@ -39,7 +40,9 @@ export async function runBatch(files, pane, download) {
     row.state.textContent = 'running';
     try {
       const bytes = new Uint8Array(await f.arrayBuffer());
-      current = task('denoise', { bytes, settings }, (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; });
+      const onProgress = (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; };
+      // As in a pane: patch-graph files are split across all workers, pixel-graph ones take one.
+      current = pane.settings.method === 'patch-graph' ? splitRun(bytes, settings, onProgress) : task('denoise', { bytes, settings }, onProgress);
       const r = await current.promise;
       const report_ = JSON.parse(r.report);
       let name = `${f.name.replace(/\.[^.]+$/, '')}-denoised.png`;

@@ -128,6 +128,9 @@ export class Pane {
       const mib = (b) => `${Math.round(b / 1048576)} MiB`;
       const peakBytes = r.peakWorkerBytes || r.memoryBytes;
       const workers = r.workers || 1;
+      // For benchmarks and tests: the run's figures on the pane itself.
+      Object.assign(this.el.dataset, { seconds: r.seconds, workers, peakBytes, bandBytes: r.bandWorkerBytes || '',
+        wholeBytes: r.wholeImageWorkerBytes || r.memoryBytes || '' });
       stage.textContent = `done in ${fmt(r.seconds)} s on ${workers} worker${workers > 1 ? 's' : ''}` +
         (peakBytes ? `, at most ${mib(peakBytes)} each` : '');
       bar.value = 1;

@@ -19,7 +19,7 @@ function round1024(v) {
 class Assembler {
   constructor(bands, width, height, channels, fallback) {
     Object.assign(this, { bands, width, height, channels, fallback });
-    this.out = new Float32Array(channels * width * height);
+    this.out = fallback.map(() => new Float32Array(width * height));
     this.parts = bands.map(() => null);
     this.received = bands.map(() => false);
     this.next = 0;
@@ -37,44 +37,46 @@ class Assembler {
 
   writeRow(y) {
     const { width: w, out, fallback } = this;
-    const plane = w * this.height;
     const cover = this.parts.filter((p) => p && y >= p.y0 && y < p.y1);
     for (let x = 0; x < w; x += 1) {
       let den = 0;
       for (const p of cover) den += p.den[(y - p.y0) * w + x];
       for (let c = 0; c < this.channels; c += 1) {
-        const i = c * plane + y * w + x;
+        const i = y * w + x;
         if (den > 0) {
           let num = 0;
           for (const p of cover) num += p.num[c * p.rows * w + (y - p.y0) * w + x];
-          out[i] = round1024(num / den);
+          out[c][i] = round1024(num / den);
         } else {
-          out[i] = fallback[i];
+          out[c][i] = fallback[c][i];
         }
       }
     }
   }
 }
 
-// Rows [y0, y1) of every plane, end to end (a band's window).
-function windowOf(planes, width, height, channels, y0, y1) {
+// Rows [y0, y1) of every plane (one Float32Array each), end to end: a band's window.
+function windowOf(planes, width, y0, y1) {
   const rows = (y1 - y0) * width;
-  const win = new Float32Array(channels * rows);
-  for (let c = 0; c < channels; c += 1) win.set(planes.subarray(c * width * height + y0 * width, c * width * height + y1 * width), c * rows);
+  const win = new Float32Array(planes.length * rows);
+  planes.forEach((p, c) => win.set(p.subarray(y0 * width, y1 * width), c * rows));
   return win;
 }
 
 // Returns {promise, stop}; the promise gives what the single-worker 'denoise' gives, plus
-// `workers` (at most this many ran at once) and `peakWorkerBytes`.
+// `workers` (at most this many ran at once), `peakWorkerBytes`, and its two parts:
+// `bandWorkerBytes` (workers running bands) and `wholeImageWorkerBytes` (preparing, finishing).
 export function splitRun(bytes, settings, onProgress) {
   const jobs = new Set();
   let stopped = false;
-  let peak = 0;
+  // Peak wasm memory of a worker doing band jobs, and of one preparing or finishing the whole image.
+  const peak = { band: 0, whole: 0 };
   const run = (kind, payload, transfer = [], onP = null) => {
     if (stopped) return Promise.reject(new Stopped('stopped'));
     const t = task(kind, payload, onP, transfer);
     jobs.add(t);
-    return t.promise.then((r) => { jobs.delete(t); peak = Math.max(peak, r.memoryBytes || 0); return r; },
+    const slot = kind === 'band' ? 'band' : 'whole';
+    return t.promise.then((r) => { jobs.delete(t); peak[slot] = Math.max(peak[slot], r.memoryBytes || 0); return r; },
       (e) => { jobs.delete(t); throw e; });
   };
 
@@ -94,8 +96,8 @@ export function splitRun(bytes, settings, onProgress) {
         const i = sent;
         const b = bands[i];
         sent += 1;
-        const noisy = windowOf(prep.planes, width, height, channels, b.y0, b.y1);
-        const basicWin = basic ? windowOf(basic, width, height, channels, b.y0, b.y1) : new Float32Array(0);
+        const noisy = windowOf(prep.planes, width, b.y0, b.y1);
+        const basicWin = basic ? windowOf(basic, width, b.y0, b.y1) : new Float32Array(0);
         run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), noisy, basic: basicWin },
           [noisy.buffer, basicWin.buffer], (f) => { part[i] = f; report(); })
           .then((r) => {
@@ -122,10 +124,12 @@ export function splitRun(bytes, settings, onProgress) {
       planes = await stage(prep, bands, basic, 0.5, 0.45, 'final estimate');
     }
     onProgress(0.95, 'writing the result');
-    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, [planes.buffer]);
+    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, planes.map((p) => p.buffer));
     r.seconds = (performance.now() - t0) / 1000;
     r.workers = Math.max(1, Math.min(poolSize, bands.length));
-    r.peakWorkerBytes = peak;
+    r.peakWorkerBytes = Math.max(peak.band, peak.whole);
+    r.bandWorkerBytes = peak.band;
+    r.wholeImageWorkerBytes = peak.whole;
     return r;
   })();
   const stop = () => {

@@ -12,7 +12,9 @@ export const simdSupported = () => WebAssembly.validate(SIMD_PROBE);
 export function installWorker(pg, ready, build) {
   const MAX_MEGAPIXELS = 64;
   const keys = ['rgba', 'png', 'residual', 'cuts', 'planes', 'num', 'den'];
-  const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k]).map((k) => r[k].buffer);
+  // Large arrays move to the page instead of being copied; `planes` is an array of them.
+  const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k])
+    .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]).map((a) => a.buffer));
   const progress = (fraction, stage) => self.postMessage({ progress: fraction, stage });
   self.onmessage = async (event) => {
     const m = event.data;

@@ -151,60 +151,72 @@ pub struct ResidualStats {
     pub edge_correlation: f64,
 }
 
-fn pearson(a: &[f64], b: &[f64]) -> f64 {
-    let n = a.len() as f64;
-    if a.is_empty() {
-        return 0.0;
+/// Pearson correlation of pairs fed one at a time, with Welford's co-moment updates (stable in one
+/// pass, no arrays: the residual checks of a 64-megapixel image would otherwise hold gigabytes).
+#[derive(Default)]
+struct Correlation {
+    n: f64,
+    ma: f64,
+    mb: f64,
+    saa: f64,
+    sbb: f64,
+    sab: f64,
+}
+
+impl Correlation {
+    fn push(&mut self, a: f64, b: f64) {
+        self.n += 1.0;
+        let da = a - self.ma;
+        self.ma += da / self.n;
+        let db = b - self.mb;
+        self.mb += db / self.n;
+        self.saa += da * (a - self.ma);
+        self.sbb += db * (b - self.mb);
+        self.sab += da * (b - self.mb);
     }
-    let (ma, mb) = (a.iter().sum::<f64>() / n, b.iter().sum::<f64>() / n);
-    let (mut sab, mut saa, mut sbb) = (0.0, 0.0, 0.0);
-    for (x, y) in a.iter().zip(b) {
-        sab += (x - ma) * (y - mb);
-        saa += (x - ma).powi(2);
-        sbb += (y - mb).powi(2);
-    }
-    if saa == 0.0 || sbb == 0.0 {
-        0.0
-    } else {
-        sab / (saa * sbb).sqrt()
+
+    /// 0 when either side is constant (or empty).
+    fn value(&self) -> f64 {
+        if self.saa <= 0.0 || self.sbb <= 0.0 {
+            0.0
+        } else {
+            self.sab / (self.saa * self.sbb).sqrt()
+        }
     }
 }
 
+/// No-reference checks of a result: the residual (noisy - denoised) should look like the noise
+/// (std near sigma, no correlation between neighbours, none with the result's edges).
 pub fn residual_stats(noisy: &Plane, denoised: &Plane, sigma: f64) -> ResidualStats {
     let (w, h) = (noisy.width, noisy.height);
-    let r: Vec<f64> = noisy.data.iter().zip(&denoised.data).map(|(a, b)| f64::from(*a) - f64::from(*b)).collect();
-    let n = r.len() as f64;
-    let mean = r.iter().sum::<f64>() / n;
-    let std = (r.iter().map(|v| (v - mean).powi(2)).sum::<f64>() / n).sqrt();
-    let (mut left, mut right, mut up, mut down) = (Vec::new(), Vec::new(), Vec::new(), Vec::new());
+    let r = |i: usize| f64::from(noisy.data[i]) - f64::from(denoised.data[i]);
+    let n = (w * h) as f64;
+    let mean = (0..w * h).map(r).sum::<f64>() / n;
+    let std = ((0..w * h).map(|i| (r(i) - mean).powi(2)).sum::<f64>() / n).sqrt();
+    let (mut across, mut down) = (Correlation::default(), Correlation::default());
+    // Central-difference gradient magnitude of the result on the interior, against |residual|.
+    let mut edge = Correlation::default();
     for y in 0..h {
         for x in 0..w {
+            let i = y * w + x;
             if x + 1 < w {
-                left.push(r[y * w + x]);
-                right.push(r[y * w + x + 1]);
+                across.push(r(i), r(i + 1));
             }
             if y + 1 < h {
-                up.push(r[y * w + x]);
-                down.push(r[(y + 1) * w + x]);
+                down.push(r(i), r(i + w));
             }
-        }
-    }
-    let lag1 = 0.5 * (pearson(&left, &right) + pearson(&up, &down));
-    // Central-difference gradient magnitude of the result on the interior, against |residual|.
-    let (mut grad, mut absr) = (Vec::new(), Vec::new());
-    for y in 1..h.saturating_sub(1) {
-        for x in 1..w.saturating_sub(1) {
-            let gx = f64::from(denoised.get(x + 1, y)) - f64::from(denoised.get(x - 1, y));
-            let gy = f64::from(denoised.get(x, y + 1)) - f64::from(denoised.get(x, y - 1));
-            grad.push((gx * gx + gy * gy).sqrt());
-            absr.push(r[y * w + x].abs());
+            if x >= 1 && y >= 1 && x + 1 < w && y + 1 < h {
+                let gx = f64::from(denoised.get(x + 1, y)) - f64::from(denoised.get(x - 1, y));
+                let gy = f64::from(denoised.get(x, y + 1)) - f64::from(denoised.get(x, y - 1));
+                edge.push(r(i).abs(), (gx * gx + gy * gy).sqrt());
+            }
         }
     }
     ResidualStats {
         std,
         std_over_sigma: if sigma > 0.0 { std / sigma } else { f64::NAN },
-        lag1_autocorrelation: lag1,
-        edge_correlation: pearson(&absr, &grad),
+        lag1_autocorrelation: 0.5 * (across.value() + down.value()),
+        edge_correlation: edge.value(),
     }
 }
 

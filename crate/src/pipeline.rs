@@ -2,6 +2,7 @@
 //! Works on a decoded [`Image`] and never alters it.
 
 use crate::color;
+use std::borrow::Cow;
 use crate::error::Result;
 use crate::methods::{self, MethodOutput};
 use crate::patch::Group;
@@ -49,25 +50,26 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
     estimates.iter().map(|e| e.chosen()).sum::<f64>() / estimates.len().max(1) as f64
 }
 
-/// An image made ready for a method: the noise model applied (`working`), with the sigma and
-/// range the method works with. [`method_planes`] gives the planes a method takes.
-pub struct Prepared {
+/// An image made ready for a method: the noise model applied (`working`: the image's own planes,
+/// borrowed, for Gaussian noise), with the sigma and range the method works with.
+/// [`method_planes`] gives the planes a method takes.
+pub struct Prepared<'a> {
     pub photon: PhotonNoise,
-    pub working: Vec<Plane>,
+    pub working: Cow<'a, [Plane]>,
     pub range: f64,
     pub sigma: f64,
     pub estimated: bool,
     pub estimates: Vec<NoiseEstimate>,
 }
 
-pub fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
+pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> {
     settings.validate()?;
     let photon = PhotonNoise { gain: settings.poisson_gain, read: settings.poisson_read_noise };
     let (working, range) = match settings.noise {
-        NoiseModel::Gaussian => (img.channels.clone(), f64::from(img.max_value())),
+        NoiseModel::Gaussian => (Cow::Borrowed(img.channels.as_slice()), f64::from(img.max_value())),
         // The range of the stabilised domain, so sigma-relative parameters see the same scale.
         NoiseModel::Poisson => {
-            (map_planes(&img.channels, |v| photon.forward(v)), photon.forward(f64::from(img.max_value())))
+            (Cow::Owned(map_planes(&img.channels, |v| photon.forward(v))), photon.forward(f64::from(img.max_value())))
         }
     };
     let estimates: Vec<NoiseEstimate> = working.iter().map(noise::estimate).collect();
@@ -81,7 +83,7 @@ pub fn prepare(img: &Image, settings: &Settings) -> Result<Prepared> {
 /// The planes a method works on: the working planes, colour ones in the opponent space
 /// (luminance first).
 pub fn method_planes(p: &Prepared) -> Vec<Plane> {
-    if p.working.len() == 3 { color::to_opponent(&p.working) } else { p.working.clone() }
+    if p.working.len() == 3 { color::to_opponent(&p.working) } else { p.working.to_vec() }
 }
 
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
@@ -101,10 +103,17 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
 }
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
-pub fn finish(img: &Image, settings: &Settings, prepared: Prepared, output: MethodOutput) -> RunOutput {
+pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> RunOutput {
     let Prepared { photon, working, sigma, estimated, estimates, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
-    let planes = if planes.len() == 3 { color::from_opponent(&planes) } else { planes };
+    // The method's planes go as soon as they are converted: large images hold one copy at a time.
+    let planes = if planes.len() == 3 {
+        let rgb = color::from_opponent(&planes);
+        drop(planes);
+        rgb
+    } else {
+        planes
+    };
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     drop(working);
     let out_planes = match settings.noise {

@@ -9,8 +9,9 @@ use crate::methods::MethodOutput;
 use crate::pipeline::RunOutput;
 use crate::planes::{Image, Plane};
 use crate::{metrics, pipeline, preview, Error, Progress, Settings};
-use js_sys::{Float32Array, Float64Array, Function, Object, Reflect, Uint8Array};
+use js_sys::{Array, Float32Array, Float64Array, Function, Object, Reflect, Uint8Array};
 use wasm_bindgen::prelude::*;
+use wasm_bindgen::JsCast;
 
 fn js_err(e: Error) -> JsError {
     JsError::new(&e.to_string())
@@ -28,9 +29,24 @@ fn num(v: usize) -> JsValue {
     JsValue::from_f64(v as f64)
 }
 
-/// Planes laid end to end in one array (what crosses to JS and back).
-fn flatten(planes: &[Plane]) -> Vec<f32> {
-    planes.iter().flat_map(|p| p.data.iter().copied()).collect()
+/// One Float32Array per plane: whole images cross the boundary a plane at a time, each copied
+/// once, never gathered into one more array.
+fn plane_arrays(planes: &[Plane]) -> Array {
+    planes.iter().map(|p| JsValue::from(Float32Array::from(p.data.as_slice()))).collect()
+}
+
+/// The planes back from JS: each array must hold `width` x `height` values.
+fn planes_from(arrays: &Array, width: usize, height: usize) -> Result<Vec<Plane>, JsError> {
+    arrays
+        .iter()
+        .map(|a| {
+            let a: Float32Array = a.dyn_into().map_err(|_| JsError::new("a plane sent to the worker is not a Float32Array"))?;
+            if a.length() as usize != width * height {
+                return Err(JsError::new("the planes sent to the worker do not match the image size"));
+            }
+            Ok(Plane { width, height, data: a.to_vec() })
+        })
+        .collect()
 }
 
 /// Splits an array of whole planes of `width` x `height`; the length must fit exactly.
@@ -62,6 +78,11 @@ fn decode(input: &[u8], max_megapixels: u32) -> Result<Image, JsError> {
     let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
     codec::decode(input, &limits).map_err(js_err)
 }
+
+/// Pixels the pixel-graph method takes in one worker: its graph and solver vectors for the whole
+/// image must fit the 4 GiB of a wasm32 instance with room to spare (measured: about 140 bytes
+/// per pixel for colour, so 16 MP is about 2.2 GiB; 40 MP grey ran out).
+const PIXEL_GRAPH_MAX_PIXELS: usize = 16_000_000;
 
 #[wasm_bindgen(start)]
 pub fn start() {
@@ -129,11 +150,21 @@ fn run_result(img: &Image, settings: &Settings, run: &RunOutput) -> Result<JsVal
 pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progress: &Function) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
+    let pixels = img.width * img.height;
+    if settings.method == crate::settings::Method::PixelGraph && pixels > PIXEL_GRAPH_MAX_PIXELS {
+        return Err(JsError::new(&format!(
+            "this image is too large for the pixel-graph method in the page ({:.1} megapixels; at most {} fit in one \
+             worker's memory): use the patch-graph method, or the command line",
+            pixels as f64 / 1e6,
+            PIXEL_GRAPH_MAX_PIXELS / 1_000_000
+        )));
+    }
     let run = pipeline::denoise(&img, &settings, &JsProgress(on_progress)).map_err(js_err)?;
     run_result(&img, &settings, &run)
 }
 
-/// First step of a patch-graph run split across workers: the method's planes (end to end), the
+/// First step of a patch-graph run split across workers: the method's planes (an array of
+/// Float32Arrays), the
 /// sigma and range, and the bands, each one job for a worker ([`run_band`]). No bands when there
 /// is nothing to remove (sigma 0).
 #[wasm_bindgen(js_name = prepareRun)]
@@ -142,19 +173,23 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let planes = pipeline::method_planes(&p);
-    let plan: Vec<Band> = if p.sigma > 0.0 {
-        let stage = Stage::new(&planes, None, 0, img.height, p.sigma, p.range, &settings.patch_graph).map_err(js_err)?;
-        bands::plan(img.width, img.height, &stage.profile(), band_rows as usize)
+    let (sigma, range) = (p.sigma, p.range);
+    drop(p);
+    let (width, height) = (img.width, img.height);
+    drop(img);
+    let plan: Vec<Band> = if sigma > 0.0 {
+        let stage = Stage::new(&planes, None, 0, height, sigma, range, &settings.patch_graph).map_err(js_err)?;
+        bands::plan(width, height, &stage.profile(), band_rows as usize)
     } else {
         Vec::new()
     };
     let obj = Object::new();
-    set(&obj, "width", &num(img.width))?;
-    set(&obj, "height", &num(img.height))?;
+    set(&obj, "width", &num(width))?;
+    set(&obj, "height", &num(height))?;
     set(&obj, "channels", &num(planes.len()))?;
-    set(&obj, "sigma", &JsValue::from_f64(p.sigma))?;
-    set(&obj, "range", &JsValue::from_f64(p.range))?;
-    set(&obj, "planes", &Float32Array::from(flatten(&planes).as_slice()).into())?;
+    set(&obj, "sigma", &JsValue::from_f64(sigma))?;
+    set(&obj, "range", &JsValue::from_f64(range))?;
+    set(&obj, "planes", &plane_arrays(&planes).into())?;
     set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| JsError::new(&e.to_string()))?))?;
     Ok(obj.into())
 }
@@ -192,14 +227,14 @@ pub fn run_band(
     Ok(obj.into())
 }
 
-/// Last step of a split run: the method's output planes (end to end) back to an image, as
-/// [`denoise`] returns it.
+/// Last step of a split run: the method's output planes (an array of Float32Arrays) back to an
+/// image, as [`denoise`] returns it.
 #[wasm_bindgen(js_name = finishRun)]
-pub fn finish_run(input: &[u8], settings_json: &str, planes: &[f32], max_megapixels: u32) -> Result<JsValue, JsError> {
+pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapixels: u32) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
-    let planes = unflatten(planes, img.width, img.height)?;
+    let planes = planes_from(planes, img.width, img.height)?;
     if planes.len() != p.working.len() {
         return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
     }

@@ -2,6 +2,7 @@
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
 import { readFileSync } from 'node:fs';
+import { crc32, deflateSync } from 'node:zlib';
 import { join } from 'node:path';
 import { ROOT } from './harness.mjs';
 
@@ -31,4 +32,61 @@ test('errors arrive as exceptions with the plain message', () => {
   assert.throws(() => pg.open(new TextEncoder().encode('hello'), 64), /not an image/);
   assert.throws(() => pg.checkSettings('{"sigma": -3}'), /sigma must be between 0 and 65535, got -3/);
   assert.throws(() => pg.denoise(sample, '{"bogus": 1}', 64, () => {}), /not valid/);
+});
+
+// A valid grey 8-bit PNG of w x h zeros (ISO/IEC 15948: signature, IHDR, zlib IDAT, IEND, CRC-32).
+function blankPng(w, h) {
+  const chunk = (type, data) => {
+    const body = Buffer.concat([Buffer.from(type, 'latin1'), data]);
+    const len = Buffer.alloc(4); len.writeUInt32BE(data.length);
+    const crc = Buffer.alloc(4); crc.writeUInt32BE(crc32(body));
+    return Buffer.concat([len, body, crc]);
+  };
+  const ihdr = Buffer.alloc(13);
+  ihdr.writeUInt32BE(w, 0); ihdr.writeUInt32BE(h, 4); ihdr[8] = 8; ihdr[9] = 0;
+  return Buffer.concat([Buffer.from([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]), chunk('IHDR', ihdr),
+    chunk('IDAT', deflateSync(Buffer.alloc((w + 1) * h))), chunk('IEND', Buffer.alloc(0))]);
+}
+
+test('the pixel-graph method refuses images too large for one worker, with the reason', () => {
+  // 4001 x 4000 = 16.004 megapixels, just over the page's limit of 16.
+  const png = blankPng(4001, 4000);
+  assert.equal(pg.open(png, 64).width, 4001);
+  assert.throws(() => pg.denoise(png, '{"method": "pixel-graph"}', 64, () => {}), /too large for the pixel-graph method in the page/);
+});
+
+test('the split run gives the whole-image result: prepare, bands in any order, finish', () => {
+  // The same assembly www/stitch.js does, here on one wasm instance: bands' sums added per row in
+  // band order, rounded as methods::bands::Assembler does; invariant: equal to one 'denoise' call.
+  const settings = '{"method": "patch-graph"}';
+  const whole = pg.denoise(sample, settings, 64, () => {});
+  const prep = pg.prepareRun(sample, settings, 64, 64);
+  const bands = JSON.parse(prep.bands);
+  assert.equal(prep.planes.length, 1);
+  assert.ok(bands.length >= 3, `${bands.length} bands`);
+  const { width: w, height: h } = prep;
+  const stage = (basic) => {
+    const sums = bands.map(() => null);
+    for (let i = bands.length - 1; i >= 0; i -= 1) {
+      const b = bands[i];
+      const win = (p) => (p ? p.slice(b.y0 * w, b.y1 * w) : new Float32Array(0));
+      sums[i] = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), win(prep.planes[0]), win(basic), () => {});
+    }
+    const out = new Float32Array(w * h);
+    for (let y = 0; y < h; y += 1) {
+      for (let x = 0; x < w; x += 1) {
+        let num = 0; let den = 0;
+        bands.forEach((b, i) => { if (y >= b.y0 && y < b.y1) { den += sums[i].den[(y - b.y0) * w + x]; num += sums[i].num[(y - b.y0) * w + x]; } });
+        const q = (num / den) * 1024;
+        out[y * w + x] = den > 0 ? Math.fround(q < 0 ? -Math.round(-q) : Math.round(q)) / 1024 : prep.planes[0][y * w + x];
+      }
+    }
+    return out;
+  };
+  const basic = stage(null);
+  const final = stage(basic);
+  const r = pg.finishRun(sample, settings, [final], 64);
+  assert.ok(Buffer.from(r.png).equals(Buffer.from(whole.png)));
+  assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), new Float32Array(10), new Float32Array(0), () => {}),
+    /do not match the image size/);
 });

@@ -1,5 +1,6 @@
-//! `patchgraph batch`: one setting over many files, a file at a time (each run already uses all
-//! cores), an overall progress bar, a summary table and a CSV report. A failed file is reported and
+//! `patchgraph batch`: one setting over many files, using all cores: a patch-graph file at a time
+//! (each run already spreads over the cores), pixel-graph files (one core each) as many at once as
+//! there are cores, results written in input order; an overall progress bar, a summary table and a CSV report. A failed file is reported and
 //! the others go on; the exit code is 2 if any file failed. `--shard K/N` takes every N-th file
 //! starting at the K-th of the sorted list, so N machines of a job array share one input list.
 
@@ -81,13 +82,14 @@ fn check_target(out: &Path, input: &Path, written: &[PathBuf]) -> Result<(), Err
     Ok(())
 }
 
-fn one(
-    input: &Path,
-    outdir: &Path,
-    settings: &patchgraph::Settings,
-    written: &[PathBuf],
-    progress: &dyn Progress,
-) -> Result<(PathBuf, f64), Error> {
+/// A denoised file, encoded and not yet written.
+struct Computed {
+    format: OutputFormat,
+    encoded: Vec<u8>,
+    sigma: f64,
+}
+
+fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progress) -> Result<Computed, Error> {
     let bytes = std::fs::read(input).map_err(|e| Error::Decode(format!("cannot read the file ({e})")))?;
     let img = codec::decode(&bytes, &DecodeLimits::default())?;
     let run = pipeline::denoise(&img, settings, progress)?;
@@ -97,6 +99,12 @@ fn one(
         Ok(b) => (format, b),
         Err(_) => (OutputFormat::Png, codec::encode(&run.image, OutputFormat::Png)?),
     };
+    Ok(Computed { format, encoded, sigma: run.report.sigma_used })
+}
+
+/// Writes a computed result beside its siblings in OUTDIR, never over an input or an earlier result.
+fn store(input: &Path, outdir: &Path, done: Computed, written: &[PathBuf]) -> Result<PathBuf, Error> {
+    let Computed { format, encoded, .. } = done;
     let stem = input.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "image".into());
     let ext = match format {
         OutputFormat::Png => "png",
@@ -107,7 +115,17 @@ fn one(
     let out = outdir.join(format!("{stem}.{ext}"));
     check_target(&out, input, written)?;
     write_atomically(&out, &encoded).map_err(|e| Error::Encode(format!("cannot write {} ({e})", out.display())))?;
-    Ok((out, run.report.sigma_used))
+    Ok(out)
+}
+
+/// Files computed together: one for the patch-graph method, one per core for the pixel-graph one.
+fn files_at_once(settings: &patchgraph::Settings) -> usize {
+    #[cfg(feature = "parallel")]
+    if settings.method == patchgraph::settings::Method::PixelGraph {
+        return rayon::current_num_threads().max(1);
+    }
+    let _ = settings;
+    1
 }
 
 fn csv_field(s: &str) -> String {
@@ -128,20 +146,35 @@ pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: &Path, shard: Opt
     std::fs::create_dir_all(outdir).map_err(|e| Failure::user(format!("{}: cannot create the folder ({e})", outdir.display())))?;
     let bar = TerminalProgress::new(!json && std::io::stderr().is_terminal());
     let mut outcomes = Vec::new();
-    for (index, input) in files.iter().enumerate() {
+    let at_once = files_at_once(&settings);
+    'chunks: for (c, chunk) in files.chunks(at_once).enumerate() {
         if bar.is_cancelled() {
             break;
         }
-        let start = Instant::now();
-        let slice = Slice { bar: &bar, index, total: files.len() };
-        let written: Vec<PathBuf> = outcomes.iter().filter_map(|o: &Outcome| o.output.clone()).collect();
-        let r = one(input, outdir, &settings, &written, &slice);
-        let seconds = start.elapsed().as_secs_f64();
-        outcomes.push(match r {
-            Ok((out, sigma)) => Outcome { input: input.clone(), output: Some(out), sigma: Some(sigma), seconds, error: None },
-            Err(Error::Cancelled) => break,
-            Err(e) => Outcome { input: input.clone(), output: None, sigma: None, seconds, error: Some(e.to_string()) },
-        });
+        let run = |(i, input): (usize, &PathBuf)| {
+            let start = Instant::now();
+            let r = compute(input, &settings, &Slice { bar: &bar, index: c * at_once + i, total: files.len() });
+            (r, start.elapsed().as_secs_f64())
+        };
+        #[cfg(feature = "parallel")]
+        let results: Vec<_> = {
+            use rayon::prelude::*;
+            chunk.par_iter().enumerate().map(run).collect()
+        };
+        #[cfg(not(feature = "parallel"))]
+        let results: Vec<_> = chunk.iter().enumerate().map(run).collect();
+        for (input, (r, seconds)) in chunk.iter().zip(results) {
+            let written: Vec<PathBuf> = outcomes.iter().filter_map(|o: &Outcome| o.output.clone()).collect();
+            let r = r.and_then(|done| {
+                let sigma = done.sigma;
+                store(input, outdir, done, &written).map(|out| (out, sigma))
+            });
+            outcomes.push(match r {
+                Ok((out, sigma)) => Outcome { input: input.clone(), output: Some(out), sigma: Some(sigma), seconds, error: None },
+                Err(Error::Cancelled) => break 'chunks,
+                Err(e) => Outcome { input: input.clone(), output: None, sigma: None, seconds, error: Some(e.to_string()) },
+            });
+        }
     }
     bar.finish();
     let cancelled = bar.is_cancelled();
