@@ -131,7 +131,11 @@ export function splitRun(bytes, settings, onProgress) {
     r.bandWorkerBytes = peak.band;
     r.wholeImageWorkerBytes = peak.whole;
     return r;
-  })();
+  })().catch((e) => {
+    // One failed job fails the run: its other jobs stop instead of running on for nothing.
+    for (const t of jobs) t.stop();
+    throw e;
+  });
   const stop = () => {
     stopped = true;
     for (const t of jobs) t.stop();
