@@ -17,8 +17,8 @@ function round1024(v) {
 
 // Mirrors methods::bands::Assembler: rows are written once every band touching them is in.
 class Assembler {
-  constructor(bands, width, height, channels, fallback) {
-    Object.assign(this, { bands, width, height, channels, fallback });
+  constructor(bands, width, height, fallback) {
+    Object.assign(this, { bands, width, height, fallback });
     this.out = fallback.map(() => new Float32Array(width * height));
     this.parts = bands.map(() => null);
     this.received = bands.map(() => false);
@@ -41,7 +41,7 @@ class Assembler {
     for (let x = 0; x < w; x += 1) {
       let den = 0;
       for (const p of cover) den += p.den[(y - p.y0) * w + x];
-      for (let c = 0; c < this.channels; c += 1) {
+      for (let c = 0; c < out.length; c += 1) {
         const i = y * w + x;
         if (den > 0) {
           let num = 0;
@@ -83,8 +83,8 @@ export function splitRun(bytes, settings, onProgress) {
   // One stage: bands go out as workers free up (at most a few ahead of the first unfinished band,
   // which bounds the sums held here), and rows are assembled as they complete.
   const stage = (prep, bands, basic, start, span, name) => new Promise((resolve, reject) => {
-    const { width, height, channels } = prep;
-    const asm = new Assembler(bands, width, height, channels, prep.planes);
+    const { width, height } = prep;
+    const asm = new Assembler(bands, width, height, prep.planes);
     const part = bands.map(() => 0);
     let sent = 0;
     let done = 0;
