@@ -4,6 +4,7 @@ import { call } from './tasks.js';
 import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize } from './view.js';
 import { Pane } from './panes.js';
 import { runBatch, stopBatch } from './batch.js';
+import { showNoise, hideNoise } from './noiseview.js';
 
 const STORE = 'patchgraph.settings.v1';
 const names = ['A', 'B', 'C', 'D'];
@@ -78,6 +79,11 @@ async function openSource(name, bytes, fromSample = false) {
     setImageSize(info.width, info.height);
     for (const p of app.panes) { p.result = null; p.saved = true; p.q('.save-png').disabled = true; p.showMetrics(); p.clearOverlay(); p.paint(); }
     fit(app.panes[0].viewport);
+    // The noise fit follows in the background; the image is usable before it arrives.
+    hideNoise($('noise-fit'));
+    call('noise', { bytes: bytes.slice() })
+      .then((n) => { if (app.source && app.source.bytes === bytes) showNoise($('noise-fit'), n); })
+      .catch(() => hideNoise($('noise-fit')));
     if (hadOne && app.reference) dropReference('Reference set aside: the image changed. Load its clean reference to see PSNR and SSIM.');
   } catch (e) {
     $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info)}` : '';
@@ -171,7 +177,7 @@ function wireBatch() {
 
 function csv() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
-  const cols = ['setting', 'method', 'sigma', 'sigma_estimated', 'residual_std_over_sigma', 'residual_lag1_correlation',
+  const cols = ['setting', 'method', 'noise_model', 'sigma', 'sigma_estimated', 'residual_std_over_sigma', 'residual_lag1_correlation',
     'residual_edge_correlation', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';

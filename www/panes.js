@@ -168,6 +168,7 @@ export class Pane {
     return {
       setting: this.name,
       method: r.report.method,
+      noise_model: r.report.noise.model,
       sigma: r.report.sigma_used,
       sigma_estimated: r.report.sigma_was_estimated,
       residual_std_over_sigma: mean(res.map((x) => x.std_over_sigma)),
@@ -185,7 +186,8 @@ export class Pane {
     dl.replaceChildren();
     if (!m) return;
     const rows = [
-      ['Sigma', `${fmt(m.sigma)} (${m.sigma_estimated ? 'estimated' : 'given'})`],
+      ['Noise model', m.noise_model],
+      ['Sigma', `${fmt(m.sigma)}${this.result.report.stabilised ? ' after stabilising photon noise' : ''} (${m.sigma_estimated ? 'estimated' : 'given'})`],
       ['Residual std / sigma', fmt(m.residual_std_over_sigma, 3)],
       ['Residual neighbour correlation', fmt(m.residual_lag1_correlation, 3)],
       ['Residual–edge correlation', fmt(m.residual_edge_correlation, 3)],

@@ -98,7 +98,7 @@ export function splitRun(bytes, settings, onProgress) {
         sent += 1;
         const noisy = windowOf(prep.planes, width, b.y0, b.y1);
         const basicWin = basic ? windowOf(basic, width, b.y0, b.y1) : new Float32Array(0);
-        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), noisy, basic: basicWin },
+        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), spectra: prep.spectra, noisy, basic: basicWin },
           [noisy.buffer, basicWin.buffer], (f) => { part[i] = f; report(); })
           .then((r) => {
             if (failed) return;

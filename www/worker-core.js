@@ -29,9 +29,10 @@ export function installWorker(pg, ready, build) {
         case 'denoise': r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, progress); break;
         case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, m.bandRows); break;
         case 'band':
-          r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.noisy, m.basic, progress);
+          r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, progress);
           break;
         case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, MAX_MEGAPIXELS); break;
+        case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, MAX_MEGAPIXELS)); break;
         case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;
         case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, MAX_MEGAPIXELS)); break;
         default: throw new Error(`unknown request ${m.kind}`);

@@ -17,6 +17,7 @@ pub mod planes;
 pub mod preview;
 pub mod progress;
 pub mod settings;
+pub mod synth;
 #[cfg(target_arch = "wasm32")]
 pub mod wasm;
 

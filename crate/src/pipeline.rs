@@ -7,6 +7,8 @@ use crate::error::Result;
 use crate::methods::{self, MethodOutput};
 use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
+use crate::noise::model::{self, ChannelNoise, NoiseReport, PlaneNoise};
+use crate::noise::spectrum::{self, NoiseSpectrum};
 use crate::noise::{self, vst::PhotonNoise, NoiseEstimate};
 use crate::planes::{Image, Plane};
 use crate::progress::{Progress, SubProgress};
@@ -16,7 +18,12 @@ use serde::Serialize;
 #[derive(Clone, Debug, Serialize)]
 pub struct RunReport {
     pub method: &'static str,
+    /// The model the settings asked for ("auto" lets the fit choose; see `noise`).
     pub noise_model: NoiseModel,
+    /// The model used, fitted or given, with its reasons.
+    pub noise: NoiseReport,
+    /// True when the method worked on stabilised photon noise.
+    pub stabilised: bool,
     /// Sigma the method used, in the working domain (grey levels; the stabilised domain for Poisson).
     pub sigma_used: f64,
     pub sigma_was_estimated: bool,
@@ -33,16 +40,14 @@ pub struct RunOutput {
     pub cut_map: Option<Plane>,
 }
 
-fn map_planes(planes: &[Plane], f: impl Fn(f64) -> f64) -> Vec<Plane> {
-    planes
-        .iter()
-        .map(|p| Plane { width: p.width, height: p.height, data: p.data.iter().map(|v| f(f64::from(*v)) as f32).collect() })
-        .collect()
+fn map_plane(p: &Plane, f: impl Fn(f64) -> f64) -> Plane {
+    Plane { width: p.width, height: p.height, data: p.data.iter().map(|v| f(f64::from(*v)) as f32).collect() }
 }
 
 /// Noise estimates per channel of the input image, in its grey levels.
 pub fn estimate_noise(img: &Image) -> Vec<NoiseEstimate> {
-    img.channels.iter().map(noise::estimate).collect()
+    let top = f64::from(img.max_value());
+    img.channels.iter().map(|c| noise::estimate(c, Some(top))).collect()
 }
 
 /// The one rule for a blind sigma: the mean over channels of each channel's chosen estimate.
@@ -51,39 +56,138 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
 }
 
 /// An image made ready for a method: the noise model applied (`working`: the image's own planes,
-/// borrowed, for Gaussian noise), with the sigma and range the method works with.
-/// [`method_planes`] gives the planes a method takes.
+/// borrowed, unless photon noise is stabilised), with the sigma and range the method works with
+/// and the noise report. [`method_planes`] gives the planes a method takes.
 pub struct Prepared<'a> {
-    pub photon: PhotonNoise,
+    /// Per input channel, when the working domain is photon noise stabilised.
+    pub photon: Option<Vec<PhotonNoise>>,
     pub working: Cow<'a, [Plane]>,
     pub range: f64,
     pub sigma: f64,
     pub estimated: bool,
     pub estimates: Vec<NoiseEstimate>,
+    pub noise: NoiseReport,
+}
+
+impl Prepared<'_> {
+    /// Per method plane, the noise spectra when the noise is correlated.
+    pub fn spectra(&self) -> Option<Vec<NoiseSpectrum>> {
+        self.noise.planes.iter().map(|p| p.spectrum.clone()).collect()
+    }
+
+    /// The noise variance of the luminance (first) method plane, as matching sees it.
+    pub fn luma_level(&self) -> f64 {
+        self.noise.planes.first().filter(|p| p.spectrum.is_some()).map_or(self.sigma, |p| p.level)
+    }
+}
+
+fn opponent_if_colour(planes: &[Plane]) -> Vec<Plane> {
+    if planes.len() == 3 { color::to_opponent(planes) } else { planes.to_vec() }
+}
+
+/// Spectra of the method planes at the patch side the run will use, when the noise is correlated
+/// (one plane's low frequencies carry more than [`spectrum::COLOURED_RATIO`] times its high ones).
+/// Returns the planes' noise and the run's sigma; None when the image is too small to tell.
+fn correlated_noise(working: &[Plane], range: f64, settings: &Settings) -> Option<(Vec<PlaneNoise>, f64)> {
+    let planes = opponent_if_colour(working);
+    let at = |k: usize| -> Option<Vec<NoiseSpectrum>> { planes.iter().map(|p| spectrum::estimate(p, k)).collect() };
+    let first = at(8)?;
+    if !first.iter().any(NoiseSpectrum::is_coloured) {
+        return None;
+    }
+    let sigma_of = |sp: &[NoiseSpectrum]| sp.iter().map(|s| s.pixel_variance().sqrt()).sum::<f64>() / sp.len() as f64;
+    let k = methods::patch_graph::profile(&settings.patch_graph, sigma_of(&first) * 255.0 / range).patch;
+    let spectra = if k == 8 { first } else { at(k)? };
+    let sigma = sigma_of(&spectra);
+    let planes = spectra
+        .into_iter()
+        .map(|s| PlaneNoise { level: s.pixel_variance().sqrt(), colour_ratio: s.colour_ratio(), spectrum: Some(s) })
+        .collect();
+    Some((planes, sigma))
 }
 
 pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> {
     settings.validate()?;
-    let photon = PhotonNoise { gain: settings.poisson_gain, read: settings.poisson_read_noise };
-    let (working, range) = match settings.noise {
-        NoiseModel::Gaussian => (Cow::Borrowed(img.channels.as_slice()), f64::from(img.max_value())),
-        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
-        NoiseModel::Poisson => {
-            (Cow::Owned(map_planes(&img.channels, |v| photon.forward(v))), photon.forward(f64::from(img.max_value())))
-        }
+    let top = f64::from(img.max_value());
+    let fitting = settings.noise == NoiseModel::Auto && settings.sigma.value().is_none();
+    let functions = model::fit_channels(&img.channels, top);
+    let use_photon = match settings.noise {
+        NoiseModel::Gaussian => false,
+        NoiseModel::Poisson => true,
+        NoiseModel::Auto => fitting && functions.iter().any(|f| f.signal_dependent()),
     };
-    let estimates: Vec<NoiseEstimate> = working.iter().map(noise::estimate).collect();
-    let (sigma, estimated) = match settings.sigma {
+    let channels: Vec<ChannelNoise> = functions
+        .into_iter()
+        .map(|f| {
+            let photon = use_photon.then(|| model::photon_fit(&f, settings));
+            ChannelNoise { level_function: f, photon }
+        })
+        .collect();
+    let photon: Option<Vec<PhotonNoise>> =
+        use_photon.then(|| channels.iter().filter_map(|c| c.photon.map(|p| p.noise())).collect());
+    let (working, range) = match &photon {
+        None => (Cow::Borrowed(img.channels.as_slice()), top),
+        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
+        Some(ph) => (
+            Cow::Owned(img.channels.iter().zip(ph).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect()),
+            ph.iter().map(|p| p.forward(top)).fold(0.0, f64::max),
+        ),
+    };
+    let clip_top = if photon.is_some() { None } else { Some(top) };
+    let estimates: Vec<NoiseEstimate> = working.iter().map(|p| noise::estimate(p, clip_top)).collect();
+    let (mut sigma, estimated) = match settings.sigma {
         Sigma::Value(v) => (v, false),
         Sigma::Auto(_) => (blind_sigma(&estimates), true),
     };
-    Ok(Prepared { photon, working, range, sigma, estimated, estimates })
+    let correlated = if fitting { correlated_noise(&working, range, settings) } else { None };
+    let planes = match correlated {
+        Some((planes, s)) => {
+            sigma = s;
+            planes
+        }
+        None => vec![PlaneNoise { level: sigma, colour_ratio: 1.0, spectrum: None }; working.len()],
+    };
+    let is_correlated = planes.iter().any(|p| p.spectrum.is_some());
+    let unfit = channels.iter().any(|c| c.level_function.points.iter().filter(|p| p.used).count() < 2);
+    let fallback = (fitting && unfit).then(|| {
+        "the image has too few smooth areas to tell how the noise depends on brightness; one white level was \
+         estimated instead"
+            .to_string()
+    });
+    let sentence = if fitting {
+        model::explain(use_photon, is_correlated, &channels, &planes)
+    } else {
+        format!("{} noise, as the settings ask.", model::model_name(use_photon, false))
+    };
+    let noise = NoiseReport {
+        model: model::model_name(use_photon, is_correlated).to_string(),
+        fitted: fitting,
+        sentence,
+        channels,
+        planes,
+        fallback,
+    };
+    Ok(Prepared { photon, working, range, sigma, estimated, estimates, noise })
+}
+
+/// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
+/// or not), for reports and the page.
+pub struct NoiseFit {
+    pub estimates: Vec<NoiseEstimate>,
+    pub report: NoiseReport,
+    pub spectra_8: Vec<Option<NoiseSpectrum>>,
+}
+
+pub fn fit_noise(img: &Image) -> Result<NoiseFit> {
+    let p = prepare(img, &Settings::default())?;
+    let spectra_8 = method_planes(&p).iter().map(|q| spectrum::estimate(q, 8)).collect();
+    Ok(NoiseFit { estimates: p.estimates, report: p.noise, spectra_8 })
 }
 
 /// The planes a method works on: the working planes, colour ones in the opponent space
 /// (luminance first).
 pub fn method_planes(p: &Prepared) -> Vec<Plane> {
-    if p.working.len() == 3 { color::to_opponent(&p.working) } else { p.working.to_vec() }
+    opponent_if_colour(&p.working)
 }
 
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
@@ -94,7 +198,10 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
     let (sigma, range) = (prepared.sigma, prepared.range);
     let output = match settings.method {
         Method::PixelGraph => methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?,
-        Method::PatchGraph => methods::patch_graph::denoise(&planes_in, sigma, range, &settings.patch_graph, &sub)?,
+        Method::PatchGraph => {
+            let spectra = prepared.spectra();
+            methods::patch_graph::denoise(&planes_in, sigma, range, &settings.patch_graph, spectra.as_deref(), &sub)?
+        }
     };
     drop(planes_in);
     let out = finish(img, settings, prepared, output);
@@ -104,7 +211,7 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
 pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> RunOutput {
-    let Prepared { photon, working, sigma, estimated, estimates, .. } = prepared;
+    let Prepared { photon, working, sigma, estimated, estimates, noise, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
     let planes = if planes.len() == 3 {
@@ -116,15 +223,18 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
     };
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     drop(working);
-    let out_planes = match settings.noise {
-        NoiseModel::Gaussian => planes,
-        NoiseModel::Poisson => map_planes(&planes, |d| photon.inverse(d)),
+    let stabilised = photon.is_some();
+    let out_planes = match &photon {
+        None => planes,
+        Some(ph) => planes.iter().zip(ph).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
     };
     RunOutput {
         image: img.with_channels(out_planes),
         report: RunReport {
             method: settings.method.name(),
             noise_model: settings.noise,
+            noise,
+            stabilised,
             sigma_used: sigma,
             sigma_was_estimated: estimated,
             noise_estimates: estimates,
@@ -138,11 +248,8 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
 /// Sigma for drawing the residual (input minus result) in the input's grey levels: the sigma
 /// used, or for photon noise, whose sigma lives in the stabilised domain, the input's own blind
 /// estimate.
-pub fn residual_view_sigma(img: &Image, settings: &Settings, report: &RunReport) -> f64 {
-    match settings.noise {
-        NoiseModel::Gaussian => report.sigma_used,
-        NoiseModel::Poisson => blind_sigma(&estimate_noise(img)),
-    }
+pub fn residual_view_sigma(img: &Image, report: &RunReport) -> f64 {
+    if report.stabilised { blind_sigma(&estimate_noise(img)) } else { report.sigma_used }
 }
 
 /// Inspection: the patch group around pixel (x, y) exactly as a patch-graph run would match it
@@ -151,6 +258,6 @@ pub fn group_at(img: &Image, settings: &Settings, x: usize, y: usize) -> Result<
     let p = prepare(img, settings)?;
     let luma = method_planes(&p).swap_remove(0);
     let s = &settings.patch_graph;
-    let group = methods::patch_graph::group_at(&luma, p.sigma, p.range, s, x, y)?;
+    let group = methods::patch_graph::group_at(&luma, p.sigma, p.luma_level(), p.range, s, x, y)?;
     Ok((group, methods::patch_graph::profile(s, p.sigma * 255.0 / p.range).patch))
 }

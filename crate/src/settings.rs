@@ -4,8 +4,9 @@
 use crate::error::{Error, Result};
 use serde::{Deserialize, Serialize};
 
-/// Bumped when a field changes meaning; older files are refused with a clear message.
-pub const SETTINGS_VERSION: u32 = 1;
+/// Bumped when a field changes meaning. Version 1 files (Gaussian noise by default, the photon
+/// model's `poisson_gain` and `poisson_read_noise`) are read and carried over; others are refused.
+pub const SETTINGS_VERSION: u32 = 2;
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
@@ -23,20 +24,28 @@ impl Method {
     }
 }
 
+/// What the noise is taken to be.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum NoiseModel {
+    /// Fitted from the image: white or correlated, Gaussian or Poisson-Gaussian, said in the report.
+    Auto,
+    /// White Gaussian noise of one level (`sigma`).
     Gaussian,
+    /// Photon noise with Gaussian read noise (`gain`, `offset`, `read_noise`, each fitted when "auto").
     Poisson,
 }
 
-/// "auto" (estimate from the image) or a number in the input's grey levels.
+/// "auto" (fitted from the image) or a number in the input's grey levels.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(untagged)]
-pub enum Sigma {
+pub enum AutoOr {
     Value(f64),
     Auto(AutoWord),
 }
+
+/// The noise level: "auto" or a number.
+pub type Sigma = AutoOr;
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
@@ -44,8 +53,16 @@ pub enum AutoWord {
     Auto,
 }
 
-impl Sigma {
-    pub const AUTO: Sigma = Sigma::Auto(AutoWord::Auto);
+impl AutoOr {
+    pub const AUTO: AutoOr = AutoOr::Auto(AutoWord::Auto);
+
+    /// The number given, if any.
+    pub fn value(self) -> Option<f64> {
+        match self {
+            AutoOr::Value(v) => Some(v),
+            AutoOr::Auto(_) => None,
+        }
+    }
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
@@ -135,10 +152,12 @@ pub struct Settings {
     pub method: Method,
     pub sigma: Sigma,
     pub noise: NoiseModel,
-    /// Grey levels per photon for the Poisson model.
-    pub poisson_gain: f64,
-    /// Gaussian read-noise std (grey levels) added to the photon noise.
-    pub poisson_read_noise: f64,
+    /// Grey levels per photon (photon noise); "auto" fits it from the image.
+    pub gain: AutoOr,
+    /// Black level: the grey level of no light; "auto" takes the darkest smooth area.
+    pub offset: AutoOr,
+    /// Gaussian read-noise std (grey levels) on top of the photon noise; "auto" fits it.
+    pub read_noise: AutoOr,
     pub pixel_graph: PixelGraphSettings,
     pub patch_graph: PatchGraphSettings,
 }
@@ -149,9 +168,10 @@ impl Default for Settings {
             version: SETTINGS_VERSION,
             method: Method::PatchGraph,
             sigma: Sigma::AUTO,
-            noise: NoiseModel::Gaussian,
-            poisson_gain: 1.0,
-            poisson_read_noise: 0.0,
+            noise: NoiseModel::Auto,
+            gain: AutoOr::AUTO,
+            offset: AutoOr::AUTO,
+            read_noise: AutoOr::AUTO,
             pixel_graph: PixelGraphSettings::default(),
             patch_graph: PatchGraphSettings::default(),
         }
@@ -168,9 +188,14 @@ fn range(name: &'static str, v: f64, min: f64, max: f64) -> Result<()> {
 
 impl Settings {
     /// Parses JSON; unknown fields and wrong types are refused with serde's own location message.
+    /// Version 1 files are carried over to version 2 first (see [`upgrade_v1`]).
     pub fn from_json(text: &str) -> Result<Settings> {
-        let s: Settings =
-            serde_json::from_str(text).map_err(|e| Error::BadSettings(format!("the settings file is not valid: {e}")))?;
+        let bad = |e: serde_json::Error| Error::BadSettings(format!("the settings file is not valid: {e}"));
+        let mut value: serde_json::Value = serde_json::from_str(text).map_err(bad)?;
+        if value.get("version").and_then(serde_json::Value::as_u64) == Some(1) {
+            upgrade_v1(&mut value);
+        }
+        let s: Settings = serde_json::from_value(value).map_err(bad)?;
         s.validate()?;
         Ok(s)
     }
@@ -189,8 +214,15 @@ impl Settings {
         if let Sigma::Value(v) = self.sigma {
             range("sigma", v, 0.0, 65535.0)?;
         }
-        range("poisson_gain", self.poisson_gain, 1e-6, 65535.0)?;
-        range("poisson_read_noise", self.poisson_read_noise, 0.0, 65535.0)?;
+        if let Some(v) = self.gain.value() {
+            range("gain", v, 1e-6, 65535.0)?;
+        }
+        if let Some(v) = self.offset.value() {
+            range("offset", v, -65535.0, 65535.0)?;
+        }
+        if let Some(v) = self.read_noise.value() {
+            range("read_noise", v, 0.0, 65535.0)?;
+        }
         let p = &self.pixel_graph;
         range("pixel_graph.strength", p.strength, 0.0, 20.0)?;
         range("pixel_graph.weight_scale", p.weight_scale, 0.05, 20.0)?;
@@ -212,6 +244,20 @@ impl Settings {
         range("patch_graph.tile_size", f64::from(q.tile_size), 16.0, 4096.0)?;
         Ok(())
     }
+}
+
+/// Version 1 to 2: the noise model defaulted to Gaussian, the photon model had a gain of 1 and
+/// no read noise unless given, and no offset.
+fn upgrade_v1(v: &mut serde_json::Value) {
+    use serde_json::{json, Value};
+    let Value::Object(map) = v else { return };
+    map.insert("version".into(), json!(2));
+    map.entry("noise").or_insert(json!("gaussian"));
+    let gain = map.remove("poisson_gain").unwrap_or(json!(1.0));
+    let read = map.remove("poisson_read_noise").unwrap_or(json!(0.0));
+    map.insert("gain".into(), gain);
+    map.insert("read_noise".into(), read);
+    map.insert("offset".into(), json!(0.0));
 }
 
 #[cfg(test)]
@@ -238,6 +284,17 @@ mod tests {
         assert_eq!(e.to_string(), "sigma must be between 0 and 65535, got -3");
         let e = Settings::from_json(r#"{"pixel_graph": {"passes": 9}}"#).unwrap_err();
         assert_eq!(e.to_string(), "pixel_graph.passes must be between 1 and 5, got 9");
+    }
+
+    #[test]
+    fn version_1_files_keep_their_meaning() {
+        // Invariant: a version-1 file means what it meant: no noise field = Gaussian; the photon
+        // model's gain and read noise carry over, with no offset.
+        let s = Settings::from_json(r#"{"version": 1, "sigma": 7}"#).unwrap();
+        assert_eq!((s.version, s.noise, s.sigma), (2, NoiseModel::Gaussian, Sigma::Value(7.0)));
+        let s = Settings::from_json(r#"{"version": 1, "noise": "poisson", "poisson_gain": 256}"#).unwrap();
+        assert_eq!((s.noise, s.gain, s.read_noise, s.offset), (NoiseModel::Poisson, AutoOr::Value(256.0), AutoOr::Value(0.0), AutoOr::Value(0.0)));
+        assert_eq!(Settings::default().noise, NoiseModel::Auto);
     }
 
     #[test]

@@ -6,6 +6,7 @@ use crate::codec::{self, DecodeLimits, OutputFormat};
 use crate::methods::bands::{self, Band};
 use crate::methods::patch_graph::Stage;
 use crate::methods::MethodOutput;
+use crate::noise::spectrum::NoiseSpectrum;
 use crate::pipeline::RunOutput;
 use crate::planes::{Image, Plane};
 use crate::{metrics, pipeline, preview, Error, Progress, Settings};
@@ -117,6 +118,27 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     Ok(obj.into())
 }
 
+/// The noise as `noise: "auto"` fits it, as JSON: {model, sentence, fallback, channels (each with
+/// its level function's points and line, and photon parameters when used), planes, spectra_8}.
+#[wasm_bindgen(js_name = fitNoise)]
+pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<String, JsError> {
+    let img = decode(input, max_megapixels)?;
+    let fit = pipeline::fit_noise(&img).map_err(js_err)?;
+    let v = serde_json::json!({
+        "model": fit.report.model,
+        "sentence": fit.report.sentence,
+        "fallback": fit.report.fallback,
+        "channels": fit.report.channels,
+        "planes": fit.report.planes,
+        // Each with its low/high ring ratio, the number the model choice reads.
+        "spectra_8": fit.spectra_8.iter().map(|s| s.as_ref().map(|s| serde_json::json!({
+            "k": s.k, "variances": s.variances, "ratio": s.colour_ratio(), "correlated": s.is_coloured()
+        }))).collect::<Vec<_>>(),
+        "bitDepth": img.depth.bits(),
+    });
+    Ok(v.to_string())
+}
+
 /// The views' shrink factor and size (views of large images are smaller than the image).
 fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
     let f = preview::factor(img.width, img.height);
@@ -128,13 +150,13 @@ fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
 }
 
 /// What the page gets from a finished run: PNG at full depth, views, report.
-fn run_result(img: &Image, settings: &Settings, run: &RunOutput) -> Result<JsValue, JsError> {
+fn run_result(img: &Image, run: &RunOutput) -> Result<JsValue, JsError> {
     let png = codec::encode(&run.image, OutputFormat::Png).map_err(js_err)?;
     let obj = Object::new();
     let f = set_view_size(&obj, img)?;
     set(&obj, "png", &bytes(&png))?;
     set(&obj, "rgba", &bytes(&preview::rgba8(&run.image, f)))?;
-    let sigma = pipeline::residual_view_sigma(img, settings, &run.report);
+    let sigma = pipeline::residual_view_sigma(img, &run.report);
     set(&obj, "residual", &bytes(&preview::residual_rgba8(img, &run.image, sigma, f)))?;
     if let Some(map) = &run.cut_map {
         set(&obj, "cuts", &bytes(&preview::unit_plane_rgba8(map, f)))?;
@@ -160,7 +182,7 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
         )));
     }
     let run = pipeline::denoise(&img, &settings, &JsProgress(on_progress)).map_err(js_err)?;
-    run_result(&img, &settings, &run)
+    run_result(&img, &run)
 }
 
 /// First step of a patch-graph run split across workers: the method's planes (an array of
@@ -173,12 +195,13 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let planes = pipeline::method_planes(&p);
-    let (sigma, range) = (p.sigma, p.range);
+    let (sigma, range, spectra) = (p.sigma, p.range, p.spectra());
     drop(p);
     let (width, height) = (img.width, img.height);
     drop(img);
     let plan: Vec<Band> = if sigma > 0.0 {
-        let stage = Stage::new(&planes, None, 0, height, sigma, range, &settings.patch_graph).map_err(js_err)?;
+        let stage = Stage::new(&planes, None, 0, height, sigma, range, &settings.patch_graph, spectra.as_deref())
+            .map_err(js_err)?;
         bands::plan(width, height, &stage.profile(), band_rows as usize)
     } else {
         Vec::new()
@@ -191,11 +214,14 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_
     set(&obj, "range", &JsValue::from_f64(range))?;
     set(&obj, "planes", &plane_arrays(&planes).into())?;
     set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| JsError::new(&e.to_string()))?))?;
+    // Correlated noise: the spectra every band needs, as JSON ("null" for white noise).
+    set(&obj, "spectra", &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| JsError::new(&e.to_string()))?))?;
     Ok(obj.into())
 }
 
 /// One band of one stage: `noisy` (and for stage 2 `basic`, else empty) hold the band's window,
-/// rows [y0, y1) of every plane end to end. Returns the band's sums, {num (planes end to end), den}.
+/// rows [y0, y1) of every plane end to end; `spectra` is what [`prepare_run`] gave. Returns the
+/// band's sums, {num (planes end to end), den}.
 #[wasm_bindgen(js_name = runBand)]
 #[allow(clippy::too_many_arguments)]
 pub fn run_band(
@@ -205,6 +231,7 @@ pub fn run_band(
     width: u32,
     full_height: u32,
     band: &str,
+    spectra: &str,
     noisy: &[f32],
     basic: &[f32],
     on_progress: &Function,
@@ -217,8 +244,19 @@ pub fn run_band(
     let (w, rows) = (width as usize, band.y1 - band.y0);
     let noisy = unflatten(noisy, w, rows)?;
     let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
-    let stage = Stage::new(&noisy, basic.as_deref(), band.y0, full_height as usize, sigma, range, &settings.patch_graph)
-        .map_err(js_err)?;
+    let spectra: Option<Vec<NoiseSpectrum>> =
+        serde_json::from_str(spectra).map_err(|_| JsError::new("the noise spectra sent to the worker are not valid"))?;
+    let stage = Stage::new(
+        &noisy,
+        basic.as_deref(),
+        band.y0,
+        full_height as usize,
+        sigma,
+        range,
+        &settings.patch_graph,
+        spectra.as_deref(),
+    )
+    .map_err(js_err)?;
     let acc = stage.run_band(&band, &JsProgress(on_progress)).map_err(js_err)?;
     let all: Vec<f64> = acc.num.iter().flat_map(|n| n.iter().copied()).collect();
     let obj = Object::new();
@@ -239,7 +277,7 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
         return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
     }
     let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
-    run_result(&img, &settings, &run)
+    run_result(&img, &run)
 }
 
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.

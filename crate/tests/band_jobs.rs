@@ -26,14 +26,14 @@ fn image(w: usize, h: usize, k: usize) -> Plane {
 /// One stage the page's way: windows per band, results added last band first.
 fn stage_by_windows(noisy: &[Plane], basic: Option<&[Plane]>, s: &PatchGraphSettings, band_rows: usize) -> Vec<Plane> {
     let (w, h) = (noisy[0].width, noisy[0].height);
-    let whole = Stage::new(noisy, basic, 0, h, 12.0, 255.0, s).unwrap();
+    let whole = Stage::new(noisy, basic, 0, h, 12.0, 255.0, s, None).unwrap();
     let bands = plan(w, h, &whole.profile(), band_rows);
     assert!(bands.len() >= 3, "the test needs several bands, got {}", bands.len());
     let mut asm = Assembler::new(&bands, noisy);
     for (i, b) in bands.iter().enumerate().rev() {
         let win: Vec<Plane> = noisy.iter().map(|p| rows(p, b.y0, b.y1)).collect();
         let bwin: Option<Vec<Plane>> = basic.map(|bs| bs.iter().map(|p| rows(p, b.y0, b.y1)).collect());
-        let stage = Stage::new(&win, bwin.as_deref(), b.y0, h, 12.0, 255.0, s).unwrap();
+        let stage = Stage::new(&win, bwin.as_deref(), b.y0, h, 12.0, 255.0, s, None).unwrap();
         asm.add(i, stage.run_band(b, &NoProgress).unwrap()).unwrap();
     }
     asm.finish().unwrap()
@@ -41,7 +41,7 @@ fn stage_by_windows(noisy: &[Plane], basic: Option<&[Plane]>, s: &PatchGraphSett
 
 fn stage_whole(noisy: &[Plane], basic: Option<&[Plane]>, s: &PatchGraphSettings) -> Vec<Plane> {
     let (w, h) = (noisy[0].width, noisy[0].height);
-    let whole = Stage::new(noisy, basic, 0, h, 12.0, 255.0, s).unwrap();
+    let whole = Stage::new(noisy, basic, 0, h, 12.0, 255.0, s, None).unwrap();
     let bands = plan(w, h, &whole.profile(), h);
     assert_eq!(bands.len(), 1);
     let mut asm = Assembler::new(&bands, noisy);
@@ -64,7 +64,7 @@ fn band_windows_in_any_order_equal_the_whole_image_run() {
     let out_bands = stage_by_windows(&noisy, Some(&basic_whole), &s, 16);
     assert!(worst(&out_whole, &out_bands) <= 1.0 / 1024.0 + 1e-6);
     // Same bands, with whole-image planes instead of windows: identical bit for bit.
-    let whole = Stage::new(&noisy, None, 0, 83, 12.0, 255.0, &s).unwrap();
+    let whole = Stage::new(&noisy, None, 0, 83, 12.0, 255.0, &s, None).unwrap();
     let bands = plan(45, 83, &whole.profile(), 16);
     let mut asm = Assembler::new(&bands, &noisy);
     for (i, b) in bands.iter().enumerate() {
@@ -77,7 +77,7 @@ fn band_windows_in_any_order_equal_the_whole_image_run() {
 fn a_band_result_in_the_wrong_place_is_refused() {
     let s = PatchGraphSettings { tile_size: 16, ..PatchGraphSettings::default() };
     let noisy = vec![image(40, 70, 0)];
-    let stage = Stage::new(&noisy, None, 0, 70, 12.0, 255.0, &s).unwrap();
+    let stage = Stage::new(&noisy, None, 0, 70, 12.0, 255.0, &s, None).unwrap();
     let bands = plan(40, 70, &stage.profile(), 16);
     let mut asm = Assembler::new(&bands, &noisy);
     let acc = stage.run_band(&bands[1], &NoProgress).unwrap();
@@ -85,6 +85,6 @@ fn a_band_result_in_the_wrong_place_is_refused() {
     assert!(asm.add(bands.len(), acc).is_err());
     // A window too short for its band is an error, not a panic.
     let short = vec![rows(&noisy[0], 0, 20)];
-    let st = Stage::new(&short, None, 0, 70, 12.0, 255.0, &s).unwrap();
+    let st = Stage::new(&short, None, 0, 70, 12.0, 255.0, &s, None).unwrap();
     assert!(st.run_band(&bands[1], &NoProgress).is_err());
 }

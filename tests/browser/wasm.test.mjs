@@ -70,7 +70,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
     for (let i = bands.length - 1; i >= 0; i -= 1) {
       const b = bands[i];
       const win = (p) => (p ? p.slice(b.y0 * w, b.y1 * w) : new Float32Array(0));
-      sums[i] = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), win(prep.planes[0]), win(basic), () => {});
+      sums[i] = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), prep.spectra, win(prep.planes[0]), win(basic), () => {});
     }
     const out = new Float32Array(w * h);
     for (let y = 0; y < h; y += 1) {
@@ -87,6 +87,6 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   const final = stage(basic);
   const r = pg.finishRun(sample, settings, [final], 64);
   assert.ok(Buffer.from(r.png).equals(Buffer.from(whole.png)));
-  assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), new Float32Array(10), new Float32Array(0), () => {}),
+  assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), prep.spectra, new Float32Array(10), new Float32Array(0), () => {}),
     /do not match the image size/);
 });

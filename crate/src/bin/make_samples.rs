@@ -4,32 +4,8 @@
 
 use patchgraph::codec::{encode, OutputFormat};
 use patchgraph::planes::{BitDepth, Image, Plane};
+use patchgraph::synth::Rng;
 use std::path::Path;
-
-/// SplitMix64: tiny, deterministic, good enough for synthetic noise and scene layout.
-struct Rng(u64);
-
-impl Rng {
-    fn next_u64(&mut self) -> u64 {
-        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
-        let mut z = self.0;
-        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
-        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
-        z ^ (z >> 31)
-    }
-    fn uniform(&mut self) -> f64 {
-        (self.next_u64() >> 11) as f64 / (1u64 << 53) as f64
-    }
-    /// Box-Muller standard normal.
-    fn normal(&mut self) -> f64 {
-        let u1 = self.uniform().max(1e-300);
-        let u2 = self.uniform();
-        (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
-    }
-    fn range(&mut self, lo: f64, hi: f64) -> f64 {
-        lo + (hi - lo) * self.uniform()
-    }
-}
 
 /// Fluorescence micrograph: dim background, glowing cells with brighter nuclei, thin filaments.
 fn micrograph(rng: &mut Rng) -> Vec<Plane> {
@@ -167,7 +143,7 @@ fn main() -> std::process::ExitCode {
     let dir = Path::new(&dir);
     let run = || -> Result<(), String> {
         std::fs::create_dir_all(dir).map_err(|e| format!("{}: {e}", dir.display()))?;
-        let mut rng = Rng(20261201);
+        let mut rng = Rng::new(20261201);
         let cells = micrograph(&mut rng);
         save(dir, "cells-clean.png", cells.clone())?;
         save(dir, "cells-noisy.png", noisy(&cells, 15.0, &mut rng))?;

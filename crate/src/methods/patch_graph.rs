@@ -13,6 +13,7 @@
 use super::bands::{self, Assembler, Band};
 use super::MethodOutput;
 use crate::error::{Error, Result};
+use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
 use crate::patch::matching::{match_groups, patch_ssim, MatchParams};
 use crate::patch::transform::{axpy, dct2, dct_matrix, graph_fourier_basis, idct2};
@@ -78,14 +79,15 @@ fn low_freq_indices(k: usize) -> Vec<usize> {
 }
 
 /// Weights of the group graph: SSIM between the patches' low-frequency parts, clamped at 0.
-fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise_var: f64) -> Vec<f64> {
+/// `lf_noise` is the noise variance the low frequencies (DC left out) add to a patch variance.
+fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, lf_noise: f64) -> Vec<f64> {
     let coeffs: Vec<&[f32]> = flat.chunks(k * k).collect();
     let n = coeffs.len();
     let kk = (k * k) as f64;
     let c1 = (0.01 * range).powi(2);
     let c2 = (0.03 * range).powi(2);
     // Mean from the DC coefficient (sum / k); variance and covariance from the other low frequencies.
-    let nv = noise_var * (lf.len() - 1) as f64 / kk;
+    let nv = lf_noise;
     let mean: Vec<f64> = coeffs.iter().map(|c| f64::from(c[0]) / k as f64).collect();
     let var: Vec<f64> =
         coeffs.iter().map(|c| (lf[1..].iter().map(|&i| f64::from(c[i]).powi(2)).sum::<f64>() / kk - nv).max(0.0)).collect();
@@ -99,6 +101,30 @@ fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise_var: f6
         }
     }
     w
+}
+
+/// The noise of one plane per coefficient of the k x k patch transform: variance, the hard
+/// threshold (lambda std) and the variance relative to sigma^2 (exactly 1 for white noise, so the
+/// white case computes what a single sigma would).
+struct CoeffNoise {
+    var: Vec<f32>,
+    thr: Vec<f32>,
+    rel: Vec<f64>,
+}
+
+impl CoeffNoise {
+    fn new(k: usize, sigma: f64, lambda: f64, spectrum: Option<&NoiseSpectrum>) -> Self {
+        let std: Vec<f64> = match spectrum {
+            Some(s) => s.variances.iter().map(|v| v.max(0.0).sqrt()).collect(),
+            None => vec![sigma; k * k],
+        };
+        let sigma2 = sigma * sigma;
+        CoeffNoise {
+            var: std.iter().map(|s| (s * s) as f32).collect(),
+            thr: std.iter().map(|s| (lambda * s) as f32).collect(),
+            rel: std.iter().map(|s| if sigma2 > 0.0 { s * s / sigma2 } else { 1.0 }).collect(),
+        }
+    }
 }
 
 /// Shared, read-only data of one stage. The planes are a window of full-width rows
@@ -116,10 +142,18 @@ pub struct Stage<'a> {
     dct: Vec<f32>,
     window: Vec<f32>,
     lf: Vec<usize>,
+    /// Per plane.
+    noise: Vec<CoeffNoise>,
+    /// Noise variance of a luminance patch (matching) and of its low-frequency part (group graph).
+    match_var: f64,
+    lf_var: f64,
 }
 
 impl<'a> Stage<'a> {
     /// Stage 1 when `basic` is None, stage 2 otherwise. Checks the image is large enough.
+    /// `spectra` (one per plane, at the profile's patch side) describe correlated noise; None
+    /// means white noise of std `sigma`.
+    #[allow(clippy::too_many_arguments)]
     pub fn new(
         noisy: &'a [Plane],
         basic: Option<&'a [Plane]>,
@@ -128,6 +162,7 @@ impl<'a> Stage<'a> {
         sigma: f64,
         range: f64,
         s: &PatchGraphSettings,
+        spectra: Option<&[NoiseSpectrum]>,
     ) -> Result<Self> {
         let first = noisy.first().ok_or_else(|| Error::Internal("no channels to denoise".into()))?;
         let prof = profile(s, sigma * 255.0 / range);
@@ -142,6 +177,18 @@ impl<'a> Stage<'a> {
         if !rows_ok || basic.is_some_and(|b| b.len() != noisy.len()) {
             return Err(Error::Internal("the planes of a stage do not line up".into()));
         }
+        let k = prof.patch;
+        if spectra.is_some_and(|sp| sp.len() != noisy.len() || sp.iter().any(|x| x.k != k || x.variances.len() != k * k)) {
+            return Err(Error::Internal("the noise spectra do not fit the planes and patch size".into()));
+        }
+        let noise: Vec<CoeffNoise> =
+            (0..noisy.len()).map(|c| CoeffNoise::new(k, sigma, prof.lambda, spectra.map(|sp| &sp[c]))).collect();
+        let lf = low_freq_indices(k);
+        let kk = (k * k) as f64;
+        let (match_var, lf_var) = match spectra {
+            Some(sp) => (sp[0].pixel_variance(), lf[1..].iter().map(|&i| sp[0].variances[i]).sum::<f64>() / kk),
+            None => (sigma * sigma, sigma * sigma * (lf.len() - 1) as f64 / kk),
+        };
         Ok(Stage {
             noisy,
             basic,
@@ -152,7 +199,10 @@ impl<'a> Stage<'a> {
             prof,
             dct: dct_matrix(prof.patch),
             window: kaiser_window(prof.patch, prof.beta),
-            lf: low_freq_indices(prof.patch),
+            lf,
+            noise,
+            match_var,
+            lf_var,
         })
     }
 
@@ -189,7 +239,7 @@ impl<'a> Stage<'a> {
             max_group: self.group_size(),
             min_similarity: self.prof.min_similarity,
             range: self.range,
-            noise_var: if basic.is_some() { 0.0 } else { self.sigma * self.sigma },
+            noise_var: if basic.is_some() { 0.0 } else { self.match_var },
         };
         let groups = match_groups(guide, &local, &mp, &SubProgress { parent: progress, start: 0.0, span: 0.5 })?;
         let mut acc = Accumulator::new(x0, y0, cw, ch, noisy.len());
@@ -228,7 +278,7 @@ impl<'a> Stage<'a> {
         // The group graph comes from the cleanest luminance available.
         let (graph_src, nv) = match &basic_c {
             Some(b) => (&b[0], 0.0),
-            None => (&noisy_c[0], sigma2),
+            None => (&noisy_c[0], self.lf_var),
         };
         // u[i n + j]: entry i of the j-th graph Fourier vector.
         let u: Vec<f32> = if n > 1 {
@@ -251,35 +301,36 @@ impl<'a> Stage<'a> {
         let mut weight_den = 0.0f64;
         for ch in 0..noisy.len() {
             let mut t = across(&noisy_c[ch]);
+            let cn = &self.noise[ch];
             match &basic_c {
                 None => {
-                    let thr = (self.prof.lambda * self.sigma) as f32;
-                    let mut kept = 0usize;
+                    let mut kept = 0.0f64;
                     for (idx, v) in t.iter_mut().enumerate() {
+                        let f = idx % kk;
                         // The group's mean patch DC (index 0) always stays.
-                        if idx == 0 || v.abs() >= thr {
-                            kept += 1;
+                        if idx == 0 || v.abs() >= cn.thr[f] {
+                            kept += cn.rel[f];
                         } else {
                             *v = 0.0;
                         }
                     }
-                    weight_den += kept as f64;
+                    weight_den += kept;
                 }
                 Some(b) => {
                     let tb = across(&b[ch]);
-                    let s2 = sigma2 as f32;
                     let mut gsum = 0.0f32;
-                    for (v, vb) in t.iter_mut().zip(&tb) {
-                        let g = vb * vb / (vb * vb + s2);
+                    for (idx, (v, vb)) in t.iter_mut().zip(&tb).enumerate() {
+                        let f = idx % kk;
+                        let g = vb * vb / (vb * vb + cn.var[f]);
                         *v *= g;
-                        gsum += g * g;
+                        gsum += g * g * cn.rel[f] as f32;
                     }
                     weight_den += f64::from(gsum);
                 }
             }
             filtered.push(t);
         }
-        // Stage 1: 1 / (sigma^2 N_nonzero); stage 2: 1 / (sigma^2 sum g^2).
+        // Stage 1: 1 / (sum of the kept coefficients' noise variances); stage 2: 1 / sum g^2 var.
         let weight = (1.0 / (sigma2 * weight_den.max(1e-12))) as f32;
         // Inverse across the group (C_i = sum_j u_ij T_j), the inverse 2-D DCT, then aggregation.
         let (mut coeff, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
@@ -357,22 +408,38 @@ fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
     assembler.finish()
 }
 
-pub fn denoise(planes: &[Plane], sigma: f64, max_value: f64, s: &PatchGraphSettings, progress: &dyn Progress) -> Result<MethodOutput> {
+pub fn denoise(
+    planes: &[Plane],
+    sigma: f64,
+    max_value: f64,
+    s: &PatchGraphSettings,
+    spectra: Option<&[NoiseSpectrum]>,
+    progress: &dyn Progress,
+) -> Result<MethodOutput> {
     let first = planes.first().ok_or_else(|| Error::Internal("no channels to denoise".into()))?;
     if sigma <= 0.0 {
         return Ok(MethodOutput { planes: planes.to_vec(), cut_map: None, work_units: 0 });
     }
-    let stage1 = Stage::new(planes, None, 0, first.height, sigma, max_value, s)?;
+    let stage1 = Stage::new(planes, None, 0, first.height, sigma, max_value, s, spectra)?;
     let basic = run_stage(&stage1, &SubProgress { parent: progress, start: 0.0, span: 0.45 })?;
-    let stage2 = Stage::new(planes, Some(&basic), 0, first.height, sigma, max_value, s)?;
+    let stage2 = Stage::new(planes, Some(&basic), 0, first.height, sigma, max_value, s, spectra)?;
     let out = run_stage(&stage2, &SubProgress { parent: progress, start: 0.45, span: 0.55 })?;
     progress.report(1.0, "done");
     Ok(MethodOutput { planes: out, cut_map: None, work_units: 0 })
 }
 
 /// Inspection: the stage-1 group of the reference patch nearest to pixel (x, y) whose square covers
-/// it, matched on the luminance plane as a run would. Positions are in image coordinates.
-pub fn group_at(luma: &Plane, sigma: f64, max_value: f64, s: &PatchGraphSettings, x: usize, y: usize) -> Result<Group> {
+/// it, matched on the luminance plane as a run would (`luma_sigma`: the luminance noise level,
+/// which differs from the run's `sigma` for correlated noise). Positions are in image coordinates.
+pub fn group_at(
+    luma: &Plane,
+    sigma: f64,
+    luma_sigma: f64,
+    max_value: f64,
+    s: &PatchGraphSettings,
+    x: usize,
+    y: usize,
+) -> Result<Group> {
     let prof = profile(s, sigma * 255.0 / max_value);
     let k = prof.patch;
     if luma.width < k || luma.height < k || x >= luma.width || y >= luma.height {
@@ -391,7 +458,7 @@ pub fn group_at(luma: &Plane, sigma: f64, max_value: f64, s: &PatchGraphSettings
         max_group: prof.group1,
         min_similarity: prof.min_similarity,
         range: max_value,
-        noise_var: sigma * sigma,
+        noise_var: luma_sigma * luma_sigma,
     };
     let groups = match_groups(luma, &[(rx, ry)], &mp, &crate::progress::NoProgress)?;
     groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))

@@ -44,27 +44,141 @@ pub fn sigma(p: &Plane) -> f64 {
     SCALE * r.iter().sum::<f64>() / r.len() as f64
 }
 
+/// Per 16 x 16 block of the interior: the mean grey level of its pixels and the mean |I * M|.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct BlockStat {
+    pub mean: f64,
+    pub response: f64,
+}
+
+impl BlockStat {
+    /// The block's own Immerkaer sigma (before the calm-quantile correction).
+    pub fn sigma(&self) -> f64 {
+        SCALE * self.response
+    }
+}
+
+/// Which ends of the range the data reach often enough to have clipped the noise there.
+#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize)]
+pub struct Clipping {
+    /// Share of pixels at or below 0.
+    pub low_share: f64,
+    /// Share of pixels at or above the top of the range.
+    pub high_share: f64,
+}
+
+/// Share of pixels at a limit above which that limit is taken to have clipped the noise
+/// (common practice; a flat image sitting exactly at 0 by chance is rare above this).
+const CLIP_SHARE: f64 = 0.002;
+
+impl Clipping {
+    pub fn low(&self) -> bool {
+        self.low_share > CLIP_SHARE
+    }
+    pub fn high(&self) -> bool {
+        self.high_share > CLIP_SHARE
+    }
+}
+
+/// Block statistics in one pass over the rows (no image-sized buffer), and the clipping shares
+/// for the range [0, top].
+pub fn block_stats(p: &Plane, top: f64) -> (Vec<BlockStat>, Clipping) {
+    let (w, h) = (p.width, p.height);
+    let (mut lo, mut hi) = (0usize, 0usize);
+    for v in &p.data {
+        let v = f64::from(*v);
+        lo += usize::from(v <= 0.0);
+        hi += usize::from(v >= top);
+    }
+    let n = p.data.len().max(1) as f64;
+    let clip = Clipping { low_share: lo as f64 / n, high_share: hi as f64 / n };
+    if w < 3 || h < 3 {
+        return (Vec::new(), clip);
+    }
+    let (bw, bh) = ((w - 2) / BLOCK, (h - 2) / BLOCK);
+    let mut resp = vec![0.0f64; bw * bh];
+    let mut sum = vec![0.0f64; bw * bh];
+    let d = &p.data;
+    let at = |i: usize| f64::from(d[i]);
+    for by in 0..bh {
+        for y in 1 + by * BLOCK..1 + (by + 1) * BLOCK {
+            let (r0, r1, r2) = ((y - 1) * w, y * w, (y + 1) * w);
+            for x in 1..1 + bw * BLOCK {
+                let v = at(r0 + x - 1) - 2.0 * at(r0 + x) + at(r0 + x + 1) - 2.0 * at(r1 + x - 1) + 4.0 * at(r1 + x)
+                    - 2.0 * at(r1 + x + 1)
+                    + at(r2 + x - 1)
+                    - 2.0 * at(r2 + x)
+                    + at(r2 + x + 1);
+                let b = by * bw + (x - 1) / BLOCK;
+                resp[b] += v.abs();
+                sum[b] += at(r1 + x);
+            }
+        }
+    }
+    let per = (BLOCK * BLOCK) as f64;
+    let stats = resp.iter().zip(&sum).map(|(r, s)| BlockStat { mean: s / per, response: r / per }).collect();
+    (stats, clip)
+}
+
+/// The calm-quantile sigma of a set of blocks (None for fewer than 8).
+pub fn calm_sigma(blocks: &[BlockStat]) -> Option<f64> {
+    if blocks.len() < 8 {
+        return None;
+    }
+    let mut r: Vec<f64> = blocks.iter().map(|b| b.response).collect();
+    r.sort_by(f64::total_cmp);
+    let q = r[((r.len() - 1) as f64 * QUANTILE).round() as usize];
+    Some(SCALE * q / QUARTILE_BIAS)
+}
+
+/// Blocks whose noise was not cut by clipping: their mean lies more than `CLIP_MARGIN` sigmas
+/// from a limit that the data reach. Found by iterating, since the first sigma (from clipped
+/// blocks too) is low.
+const CLIP_MARGIN: f64 = 2.5;
+
+pub fn unclipped(blocks: &[BlockStat], clip: Clipping, top: f64) -> Vec<BlockStat> {
+    let mut kept = blocks.to_vec();
+    if !clip.low() && !clip.high() {
+        return kept;
+    }
+    let mut sigma = calm_sigma(blocks).unwrap_or(0.0);
+    for _ in 0..4 {
+        let m = CLIP_MARGIN * sigma;
+        let next: Vec<BlockStat> = blocks
+            .iter()
+            .filter(|b| (!clip.low() || b.mean > m) && (!clip.high() || b.mean < top - m))
+            .copied()
+            .collect();
+        match calm_sigma(&next) {
+            Some(s) => {
+                kept = next;
+                if (s - sigma).abs() <= 1e-3 * sigma {
+                    break;
+                }
+                sigma = s;
+            }
+            None => break,
+        }
+    }
+    kept
+}
+
 /// The calm-block variant; falls back to the global estimate on images with fewer than 8 blocks.
+/// Blocks whose noise was clipped at 0 or at `top` are left out when enough others remain.
+pub fn sigma_calm_blocks_clipped(p: &Plane, top: f64) -> f64 {
+    if p.width < 3 || p.height < 3 {
+        return 0.0;
+    }
+    let (blocks, clip) = block_stats(p, top);
+    calm_sigma(&unclipped(&blocks, clip, top)).unwrap_or_else(|| sigma(p))
+}
+
+/// The calm-block variant with no range limits (no clipping considered).
 pub fn sigma_calm_blocks(p: &Plane) -> f64 {
     if p.width < 3 || p.height < 3 {
         return 0.0;
     }
-    let (w, h) = (p.width - 2, p.height - 2);
-    let (bw, bh) = (w / BLOCK, h / BLOCK);
-    if bw * bh < 8 {
-        return sigma(p);
-    }
-    let r = responses(p);
-    let mut blocks = vec![0.0f64; bw * bh];
-    for y in 0..bh * BLOCK {
-        for x in 0..bw * BLOCK {
-            blocks[(y / BLOCK) * bw + x / BLOCK] += r[y * w + x];
-        }
-    }
-    blocks.iter_mut().for_each(|b| *b /= (BLOCK * BLOCK) as f64);
-    blocks.sort_by(f64::total_cmp);
-    let q = blocks[((blocks.len() - 1) as f64 * QUANTILE).round() as usize];
-    SCALE * q / QUARTILE_BIAS
+    calm_sigma(&block_stats(p, f64::INFINITY).0).unwrap_or_else(|| sigma(p))
 }
 
 #[cfg(test)]

@@ -1,6 +1,9 @@
 //! Noise level estimation and variance-stabilising transforms.
 
 pub mod immerkaer;
+pub mod model;
+pub mod nlf;
+pub mod spectrum;
 pub mod vst;
 pub mod wavelet;
 
@@ -12,7 +15,8 @@ use serde::Serialize;
 pub struct NoiseEstimate {
     /// Immerkaer over the whole image.
     pub immerkaer: f64,
-    /// Immerkaer on the calmest 16 x 16 blocks (lower quartile): the one the denoisers use.
+    /// Immerkaer on the calmest 16 x 16 blocks (lower quartile), blocks whose noise was clipped
+    /// at a limit of the range left out: the one the denoisers use.
     pub immerkaer_calm_blocks: f64,
     pub wavelet_mad: f64,
 }
@@ -25,10 +29,15 @@ impl NoiseEstimate {
     }
 }
 
-pub fn estimate(p: &Plane) -> NoiseEstimate {
+/// The estimates of a plane; `top` is the top of its range when its values can clip at 0 and
+/// there (an image's own grey levels), None when they cannot (a stabilised domain).
+pub fn estimate(p: &Plane, top: Option<f64>) -> NoiseEstimate {
     NoiseEstimate {
         immerkaer: immerkaer::sigma(p),
-        immerkaer_calm_blocks: immerkaer::sigma_calm_blocks(p),
+        immerkaer_calm_blocks: match top {
+            Some(t) => immerkaer::sigma_calm_blocks_clipped(p, t),
+            None => immerkaer::sigma_calm_blocks(p),
+        },
         wavelet_mad: wavelet::sigma_mad(p),
     }
 }

@@ -17,19 +17,22 @@ pub struct PhotonNoise {
     pub gain: f64,
     /// Gaussian read-noise std in grey levels.
     pub read: f64,
+    /// Black level: the grey level of zero photons.
+    pub offset: f64,
 }
 
 impl PhotonNoise {
-    fn offset(&self) -> f64 {
+    /// The read noise's variance in photons squared, added to the counts as if it were Poisson.
+    fn read_counts(&self) -> f64 {
         (self.read / self.gain).powi(2)
     }
 
     pub fn forward(&self, x: f64) -> f64 {
-        2.0 * (x / self.gain + 0.375 + self.offset()).max(0.0).sqrt()
+        2.0 * ((x - self.offset) / self.gain + 0.375 + self.read_counts()).max(0.0).sqrt()
     }
 
     pub fn inverse(&self, d: f64) -> f64 {
-        self.gain * (anscombe_inverse(d) - self.offset()).max(0.0)
+        self.gain * (anscombe_inverse(d) - self.read_counts()).max(0.0) + self.offset
     }
 }
 
@@ -54,7 +57,7 @@ mod tests {
 
     /// E[f(z)] for z ~ Poisson(lambda), summed over the pmf (the limit of the sample mean).
     fn expected_forward(lambda: f64) -> f64 {
-        let p = PhotonNoise { gain: 1.0, read: 0.0 };
+        let p = PhotonNoise { gain: 1.0, read: 0.0, offset: 0.0 };
         let (mut pmf, mut sum) = ((-lambda).exp(), 0.0);
         for z in 0..(lambda * 10.0 + 100.0) as usize {
             sum += pmf * p.forward(z as f64);
@@ -85,7 +88,7 @@ mod tests {
     #[test]
     fn forward_stabilises_the_variance_to_one() {
         // Invariant of the Anscombe transform: Var[f(z)] is close to 1 for moderate counts.
-        let p = PhotonNoise { gain: 1.0, read: 0.0 };
+        let p = PhotonNoise { gain: 1.0, read: 0.0, offset: 0.0 };
         for lambda in [10.0f64, 50.0] {
             let (mut pmf, mut m1, mut m2) = ((-lambda).exp(), 0.0, 0.0);
             for z in 0..(lambda * 10.0 + 100.0) as usize {
@@ -103,7 +106,7 @@ mod tests {
         // Invariant: for x = gain * Poisson(lambda) + N(0, read^2), inverse(E[f(x)]) is close to
         // gain * lambda (within 1.5% here; the read noise is 0.75 photons). E is summed over the
         // Poisson pmf and a 241-point trapezoid rule over +-6 read-noise stds.
-        let p = PhotonNoise { gain: 4.0, read: 3.0 };
+        let p = PhotonNoise { gain: 4.0, read: 3.0, offset: 0.0 };
         for lambda in [5.0f64, 20.0, 60.0] {
             let (mut pmf, mut e) = ((-lambda).exp(), 0.0);
             for z in 0..(lambda * 10.0 + 100.0) as usize {

@@ -4,7 +4,7 @@ use crate::terminal::{write_atomically, TerminalProgress};
 use crate::{MethodArg, NoiseArg};
 use patchgraph::codec::{self, DecodeLimits, OutputFormat};
 use patchgraph::planes::{BitDepth, Image};
-use patchgraph::settings::{Method, NoiseModel, Settings, Sigma};
+use patchgraph::settings::{AutoOr, Method, NoiseModel, Settings};
 use patchgraph::{metrics, pipeline, Error};
 use serde_json::json;
 use std::io::IsTerminal;
@@ -70,15 +70,42 @@ fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
     write_atomically(path, bytes).map_err(|e| Failure::user(format!("{}: cannot write the file ({e})", path.display())))
 }
 
+#[derive(clap::Args)]
 pub struct DenoiseArgs {
+    /// The noisy image (PNG, JPEG, TIFF or BMP); it is never changed.
     pub input: PathBuf,
+    /// Output file (.png, .tif, .tiff, .bmp, .jpg); written whole or not at all.
+    #[arg(short, long)]
     pub output: PathBuf,
+    /// patch-graph (default, best quality) or pixel-graph (fast).
+    #[arg(long, value_enum)]
     pub method: Option<MethodArg>,
+    /// Noise sigma in the input's grey levels, or "auto" to estimate it.
+    #[arg(long, allow_hyphen_values = true)]
     pub sigma: Option<String>,
+    /// What the noise is (default: auto, fitted from the image).
+    #[arg(long, value_enum)]
     pub noise: Option<NoiseArg>,
+    /// Photon noise: grey levels per photon, or "auto".
+    #[arg(long)]
+    pub gain: Option<String>,
+    /// Photon noise: the black level (grey level of no light), or "auto".
+    #[arg(long, allow_hyphen_values = true)]
+    pub offset: Option<String>,
+    /// Photon noise: the read-noise std in grey levels, or "auto".
+    #[arg(long)]
+    pub read_noise: Option<String>,
+    /// Settings JSON; flags given on the command line override it.
+    #[arg(long)]
     pub settings: Option<PathBuf>,
+    /// Also write the pixel graph's cut map (white = all edges cut) as an 8-bit PNG.
+    #[arg(long)]
     pub cut_map: Option<PathBuf>,
+    /// Refuse images larger than this many megapixels.
+    #[arg(long, default_value_t = 64)]
     pub max_megapixels: u64,
+    /// Print one JSON object on stdout instead of a text summary.
+    #[arg(long)]
     pub json: bool,
 }
 
@@ -87,6 +114,15 @@ pub fn read_settings(p: &Path) -> Result<Settings, Failure> {
     let text =
         std::fs::read_to_string(p).map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
     Settings::from_json(&text).map_err(|e| Failure::about(p, e))
+}
+
+fn auto_or_number(name: &str, text: &str) -> Result<AutoOr, Failure> {
+    if text.eq_ignore_ascii_case("auto") {
+        return Ok(AutoOr::AUTO);
+    }
+    text.parse()
+        .map(AutoOr::Value)
+        .map_err(|_| Failure::user(format!("{name} must be a number or \"auto\", got \"{text}\"")))
 }
 
 /// Defaults, then the settings file, then flags given on the command line.
@@ -103,19 +139,20 @@ fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
     }
     if let Some(n) = a.noise {
         s.noise = match n {
+            NoiseArg::Auto => NoiseModel::Auto,
             NoiseArg::Gaussian => NoiseModel::Gaussian,
             NoiseArg::Poisson => NoiseModel::Poisson,
         };
     }
-    if let Some(text) = &a.sigma {
-        s.sigma = if text.eq_ignore_ascii_case("auto") {
-            Sigma::AUTO
-        } else {
-            let v: f64 = text
-                .parse()
-                .map_err(|_| Failure::user(format!("sigma must be a number or \"auto\", got \"{text}\"")))?;
-            Sigma::Value(v)
-        };
+    for (name, text, field) in [
+        ("sigma", &a.sigma, &mut s.sigma),
+        ("gain", &a.gain, &mut s.gain),
+        ("offset", &a.offset, &mut s.offset),
+        ("read-noise", &a.read_noise, &mut s.read_noise),
+    ] {
+        if let Some(text) = text {
+            *field = auto_or_number(name, text)?;
+        }
     }
     s.validate().map_err(|e| Failure::user(e.to_string()))?;
     Ok(s)
@@ -151,6 +188,8 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             "output": a.output.display().to_string(),
             "method": r.method,
             "noise": r.noise_model,
+            "noise_model": r.noise,
+            "stabilised": r.stabilised,
             "sigma": r.sigma_used,
             "sigma_estimated": r.sigma_was_estimated,
             "seconds": seconds,
@@ -166,14 +205,19 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
         outln!("{v}");
     } else {
         let how = if r.sigma_was_estimated { "estimated" } else { "given" };
+        let domain = if r.stabilised { " in the stabilised domain" } else { "" };
         outln!(
-            "{} -> {}: {} with sigma {:.2} ({how}), {:.2} s",
+            "{} -> {}: {} with sigma {:.2}{domain} ({how}), {:.2} s",
             a.input.display(),
             a.output.display(),
             r.method,
             r.sigma_used,
             seconds
         );
+        outln!("  noise: {} ({})", r.noise.model, r.noise.sentence);
+        if let Some(f) = &r.noise.fallback {
+            outln!("  note: {f}");
+        }
         for (c, s) in r.residual.iter().enumerate() {
             outln!(
                 "  channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
@@ -186,26 +230,49 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
 
 pub fn noise(input: &Path, json_out: bool) -> CmdResult {
     let img = read_image(input, &DecodeLimits::default())?;
-    let est = pipeline::estimate_noise(&img);
-    let sigma = pipeline::blind_sigma(&est);
+    let fit = pipeline::fit_noise(&img).map_err(|e| Failure::about(input, e))?;
+    let est = &fit.estimates;
+    let sigma = pipeline::blind_sigma(est);
     if json_out {
         let channels: Vec<_> = est
             .iter()
-            .map(|e| {
+            .zip(&fit.report.channels)
+            .map(|(e, c)| {
+                let f = &c.level_function;
                 json!({"immerkaer": e.immerkaer, "immerkaer_calm_blocks": e.immerkaer_calm_blocks,
-                       "wavelet_mad": e.wavelet_mad, "sigma": e.chosen()})
+                       "wavelet_mad": e.wavelet_mad, "sigma": e.chosen(),
+                       "slope": f.slope, "intercept": f.intercept, "signal_dependent": f.signal_dependent(),
+                       "reliable": f.reliable, "spread": f.spread, "clipping": f.clipping, "points": f.points,
+                       "photon": c.photon})
             })
             .collect();
         let v = json!({"sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
-                       "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks; the mean over channels"});
+                       "model": fit.report.model, "explanation": fit.report.sentence, "fallback": fit.report.fallback,
+                       "planes": fit.report.planes, "spectra_8x8": fit.spectra_8,
+                       "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks away from clipped levels; the mean over channels"});
         outln!("{v}");
     } else {
-        outln!("{}: sigma {:.3} (grey levels of {} bits)", input.display(), sigma, img.depth.bits());
-        for (c, e) in est.iter().enumerate() {
+        outln!("{}: {} noise; white-noise sigma {:.3} (grey levels of {} bits)", input.display(), fit.report.model, sigma, img.depth.bits());
+        outln!("  {}", fit.report.sentence);
+        if let Some(f) = &fit.report.fallback {
+            outln!("  note: {f}");
+        }
+        for (c, (e, ch)) in est.iter().zip(&fit.report.channels).enumerate() {
+            let f = &ch.level_function;
             outln!(
-                "  channel {c}: Immerkaer {:.3}, Immerkaer on calm blocks {:.3} (used), wavelet MAD {:.3}",
-                e.immerkaer, e.immerkaer_calm_blocks, e.wavelet_mad
+                "  channel {c}: Immerkaer {:.3}, on calm blocks {:.3} (used), wavelet MAD {:.3}; variance {:.4} x level {:+.3}{}",
+                e.immerkaer, e.immerkaer_calm_blocks, e.wavelet_mad, f.slope, f.intercept,
+                if f.reliable { "" } else { " (too little range to trust the slope)" }
             );
+            if let Some(p) = ch.photon {
+                outln!("    gain {:.4} grey levels per photon, offset {:.2}, read noise {:.3}", p.gain, p.offset, p.read_noise);
+            }
+        }
+        for (i, p) in fit.spectra_8.iter().enumerate() {
+            if let Some(s) = p {
+                outln!("  plane {i}: 8 x 8 spectrum, low/high frequency ratio {:.2}{}", s.colour_ratio(),
+                    if s.is_coloured() { " (correlated)" } else { " (white)" });
+            }
         }
     }
     Ok(())

@@ -25,41 +25,22 @@ pub enum MethodArg {
 
 #[derive(Clone, Copy, ValueEnum)]
 pub enum NoiseArg {
+    /// Fit the noise from the image: white or correlated, Gaussian or photon noise.
+    Auto,
+    /// White Gaussian noise of one level (--sigma).
     Gaussian,
+    /// Photon noise with read noise (--gain, --offset, --read-noise; each fitted when not given).
     Poisson,
 }
 
 #[derive(Subcommand)]
 enum Command {
     /// Denoise one image; the output keeps the input's bit depth and channels.
-    Denoise {
-        input: PathBuf,
-        /// Output file (.png, .tif, .tiff, .bmp, .jpg); written whole or not at all.
-        #[arg(short, long)]
-        output: PathBuf,
-        #[arg(long, value_enum)]
-        method: Option<MethodArg>,
-        /// Noise sigma in the input's grey levels, or "auto" to estimate it.
-        #[arg(long, allow_hyphen_values = true)]
-        sigma: Option<String>,
-        #[arg(long, value_enum)]
-        noise: Option<NoiseArg>,
-        /// Settings JSON; flags given on the command line override it.
-        #[arg(long)]
-        settings: Option<PathBuf>,
-        /// Also write the pixel graph's cut map (white = all edges cut) as an 8-bit PNG.
-        #[arg(long)]
-        cut_map: Option<PathBuf>,
-        /// Refuse images larger than this many megapixels.
-        #[arg(long, default_value_t = 64)]
-        max_megapixels: u64,
-        /// Print one JSON object on stdout instead of a text summary.
-        #[arg(long)]
-        json: bool,
-    },
-    /// Estimate the noise sigma of an image, per channel.
+    Denoise(commands::DenoiseArgs),
+    /// Fit the noise of an image: level per channel, how it grows with brightness, its spectrum.
     Noise {
         input: PathBuf,
+        /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
     },
@@ -112,19 +93,7 @@ fn main() -> ExitCode {
         }
     };
     let result = match cli.command {
-        Command::Denoise { input, output, method, sigma, noise, settings, cut_map, max_megapixels, json } => {
-            commands::denoise(commands::DenoiseArgs {
-                input,
-                output,
-                method,
-                sigma,
-                noise,
-                settings,
-                cut_map,
-                max_megapixels,
-                json,
-            })
-        }
+        Command::Denoise(args) => commands::denoise(args),
         Command::Noise { input, json } => commands::noise(&input, json),
         Command::Batch { inputs, output, settings, shard, json } => {
             batch::batch(&inputs, &output, &settings, shard.as_deref(), json)

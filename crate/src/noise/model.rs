@@ -1,0 +1,143 @@
+//! The noise model of one image, chosen from the data or from the settings, with its reasons:
+//! white or correlated, Gaussian or Poisson-Gaussian, per channel. This is what `noise: "auto"`
+//! decides and what the report, the CLI's `noise` command and the page show.
+
+use super::nlf::{self, NoiseLevelFunction};
+use super::spectrum::NoiseSpectrum;
+use super::vst::PhotonNoise;
+use crate::planes::Plane;
+use crate::settings::Settings;
+use serde::Serialize;
+
+/// The photon model's parameters of one channel, in its grey levels, and whether each was fitted.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct PhotonFit {
+    pub gain: f64,
+    pub offset: f64,
+    pub read_noise: f64,
+    pub gain_fitted: bool,
+    pub offset_fitted: bool,
+    pub read_noise_fitted: bool,
+}
+
+impl PhotonFit {
+    pub fn noise(&self) -> PhotonNoise {
+        PhotonNoise { gain: self.gain, read: self.read_noise, offset: self.offset }
+    }
+}
+
+/// One input channel: the fitted noise-level function and, when photon noise is used, its
+/// parameters.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct ChannelNoise {
+    pub level_function: NoiseLevelFunction,
+    pub photon: Option<PhotonFit>,
+}
+
+/// One plane the method works on (grey, or opponent colour, after any stabilisation): its level
+/// and, for correlated noise, its spectrum.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct PlaneNoise {
+    /// Effective (pixel-domain) noise std in the working domain.
+    pub level: f64,
+    pub colour_ratio: f64,
+    /// Per-coefficient variances when the noise is correlated; None for white noise.
+    pub spectrum: Option<NoiseSpectrum>,
+}
+
+/// Everything said about the noise of one run.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct NoiseReport {
+    /// "white Gaussian", "Poisson-Gaussian", "correlated Gaussian" or "correlated Poisson-Gaussian".
+    pub model: String,
+    /// True when the model was fitted (`noise: "auto"`), false when the settings named it.
+    pub fitted: bool,
+    /// One plain sentence: what was chosen and why.
+    pub sentence: String,
+    pub channels: Vec<ChannelNoise>,
+    pub planes: Vec<PlaneNoise>,
+    /// Set when the fit could not be trusted and the white estimate was used instead.
+    pub fallback: Option<String>,
+}
+
+/// Photon parameters for a channel: each from the settings where given, else from the fit. The
+/// offset defaults to the darkest smooth level seen; the read noise is then the fitted std there.
+pub fn photon_fit(f: &NoiseLevelFunction, settings: &Settings) -> PhotonFit {
+    let gain_given = settings.gain.value();
+    // A flat fit gives no gain: one grey level per photon then, as counts stored plainly are.
+    let gain = gain_given.unwrap_or(if f.slope > 0.0 { f.slope } else { 1.0 }).max(1e-6);
+    let offset_given = settings.offset.value();
+    let read_given = settings.read_noise.value();
+    // var(y) = gain (y - offset) + read^2, so read^2 - gain offset = the line's intercept.
+    let intercept = if gain_given.is_some() { f.constant_intercept(gain) } else { f.intercept };
+    let (offset, read) = match (offset_given, read_given) {
+        (Some(o), Some(r)) => (o, r),
+        (Some(o), None) => (o, (intercept + gain * o).max(0.0).sqrt()),
+        (None, Some(r)) => ((r * r - intercept) / gain, r),
+        (None, None) => {
+            let o = f.low.max(0.0);
+            let v = intercept + gain * o;
+            if v >= 0.0 { (o, v.sqrt()) } else { (-intercept / gain, 0.0) }
+        }
+    };
+    PhotonFit {
+        gain,
+        offset,
+        read_noise: read,
+        gain_fitted: gain_given.is_none(),
+        offset_fitted: offset_given.is_none(),
+        read_noise_fitted: read_given.is_none(),
+    }
+}
+
+/// Fits each channel's noise-level function (values in [0, top]).
+pub fn fit_channels(channels: &[Plane], top: f64) -> Vec<NoiseLevelFunction> {
+    channels.iter().map(|c| nlf::fit(c, top)).collect()
+}
+
+/// The model's name from its two choices.
+pub fn model_name(photon: bool, correlated: bool) -> &'static str {
+    match (photon, correlated) {
+        (false, false) => "white Gaussian",
+        (true, false) => "Poisson-Gaussian",
+        (false, true) => "correlated Gaussian",
+        (true, true) => "correlated Poisson-Gaussian",
+    }
+}
+
+/// The plain sentence for a fitted model.
+pub fn explain(photon: bool, correlated: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
+    let mut s = String::new();
+    if photon {
+        let g = channels.iter().filter_map(|c| c.photon).map(|p| p.gain).sum::<f64>() / channels.len().max(1) as f64;
+        s.push_str(&format!(
+            "The noise grows with brightness (about {g:.3} grey levels per photon), so it is treated as photon \
+             noise with read noise and stabilised before filtering"
+        ));
+    } else {
+        s.push_str("The noise is about as strong in dark and bright areas, so one level is used");
+    }
+    if correlated {
+        let r = planes.iter().map(|p| p.colour_ratio).fold(0.0, f64::max);
+        s.push_str(&format!(
+            "; it is grainy rather than fine (low frequencies carry {r:.1} times the noise of high ones, as after \
+             demosaicing or compression), so each frequency gets its own threshold."
+        ));
+    } else {
+        s.push_str("; it is fine-grained (white), so all frequencies share one threshold.");
+    }
+    s
+}
+
+impl NoiseLevelFunction {
+    /// The intercept of a line of given slope through the used points (weighted as in the fit).
+    pub fn constant_intercept(&self, slope: f64) -> f64 {
+        let (mut s, mut n) = (0.0, 0.0);
+        for p in self.points.iter().filter(|p| p.used) {
+            let w = p.blocks as f64 / p.variance.max(1e-12).powi(2);
+            s += w * (p.variance - slope * p.mean);
+            n += w;
+        }
+        if n > 0.0 { s / n } else { self.intercept }
+    }
+}

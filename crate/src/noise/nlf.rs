@@ -1,0 +1,233 @@
+//! The noise-level function of one channel: the noise variance as a function of intensity,
+//! var(y) = a y + b, which is the Poisson-Gaussian model of a camera (a = grey levels per photon,
+//! b = read^2 - a * offset), fitted from the image alone in the manner of A. Foi, M. Trimeche,
+//! V. Katkovnik and K. Egiazarian, "Practical Poissonian-Gaussian noise modeling and fitting for
+//! single-image raw-data", IEEE TIP 2008: local (mean, variance) pairs from smooth blocks, binned
+//! by intensity, and a robust weighted line through them.
+//!
+//! Here the local variance of a 16 x 16 block is Immerkaer's (the block's mean |I * M|, blind to
+//! affine shading), each intensity bin keeps the calm lower quartile of its blocks (texture only
+//! adds), and blocks whose noise was cut by clipping at 0 or the top of the range are left out
+//! (see [`immerkaer::unclipped`]) instead of being modelled as censored, which needs no
+//! distributional inversion and loses only the blocks within 2.5 sigma of a limit.
+
+use super::immerkaer::{self, BlockStat, Clipping};
+use crate::planes::Plane;
+use serde::Serialize;
+
+/// One intensity bin: the median block mean, the calm noise variance, and the blocks in it.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct LevelPoint {
+    pub mean: f64,
+    pub variance: f64,
+    pub blocks: usize,
+    /// False where the robust fit set the point aside (texture left in the calm quartile).
+    pub used: bool,
+}
+
+/// var(y) = slope * y + intercept over [low, high], with the points it was fitted to.
+#[derive(Clone, Debug, PartialEq, Serialize)]
+pub struct NoiseLevelFunction {
+    pub slope: f64,
+    pub intercept: f64,
+    /// Intensity span of the points used.
+    pub low: f64,
+    pub high: f64,
+    pub points: Vec<LevelPoint>,
+    /// Root mean square relative deviation of the used points from the line.
+    pub spread: f64,
+    pub clipping: Clipping,
+    /// Enough points over enough of the range to trust the slope.
+    pub reliable: bool,
+}
+
+const BINS: usize = 12;
+/// Points more than this far above the line (relative) hold texture: set aside.
+const ABOVE: f64 = 0.5;
+/// Points this far below the line are set aside too (a bin of flat clipped-looking blocks).
+const BELOW: f64 = 0.4;
+/// The variance must change by this factor over the used span to call the noise signal-dependent.
+/// Between 1 and this, a constant level fits within the spread of the points (measured on white
+/// noise over the development set: at most 1.25; see the unit tests and BENCHMARKS.md).
+pub const DEPENDENCE_RATIO: f64 = 1.6;
+
+impl NoiseLevelFunction {
+    pub fn variance(&self, y: f64) -> f64 {
+        (self.slope * y + self.intercept).max(0.0)
+    }
+
+    /// The variance grows with intensity by more than [`DEPENDENCE_RATIO`] over the data.
+    pub fn signal_dependent(&self) -> bool {
+        self.reliable && self.slope > 0.0 && self.variance(self.high) > DEPENDENCE_RATIO * self.variance(self.low).max(1e-12)
+    }
+
+    /// The level of a constant fit: the weighted mean variance of the used points.
+    pub fn constant_variance(&self) -> f64 {
+        let (mut s, mut n) = (0.0, 0.0);
+        for p in self.points.iter().filter(|p| p.used) {
+            s += p.variance * p.blocks as f64;
+            n += p.blocks as f64;
+        }
+        if n > 0.0 { s / n } else { 0.0 }
+    }
+}
+
+fn median(v: &mut [f64]) -> f64 {
+    v.sort_by(f64::total_cmp);
+    v[v.len() / 2]
+}
+
+/// The calm points: blocks binned by mean over their span, the calm quartile variance per bin.
+fn level_points(blocks: &[BlockStat]) -> Vec<LevelPoint> {
+    let lo = blocks.iter().map(|b| b.mean).fold(f64::INFINITY, f64::min);
+    let hi = blocks.iter().map(|b| b.mean).fold(f64::NEG_INFINITY, f64::max);
+    let width = ((hi - lo) / BINS as f64).max(1e-9);
+    let mut bins: Vec<Vec<BlockStat>> = vec![Vec::new(); BINS];
+    for b in blocks {
+        bins[(((b.mean - lo) / width) as usize).min(BINS - 1)].push(*b);
+    }
+    bins.iter()
+        .filter_map(|bin| {
+            let s = immerkaer::calm_sigma(bin)?;
+            let mut means: Vec<f64> = bin.iter().map(|b| b.mean).collect();
+            Some(LevelPoint { mean: median(&mut means), variance: s * s, blocks: bin.len(), used: true })
+        })
+        .collect()
+}
+
+/// Weighted least-squares line through the used points; weights n / v^2, since the variance of
+/// a variance estimate from n blocks grows as v^2 / n.
+fn weighted_line(points: &[LevelPoint]) -> (f64, f64) {
+    let (mut sw, mut sx, mut sy, mut sxx, mut sxy) = (0.0, 0.0, 0.0, 0.0, 0.0);
+    for p in points.iter().filter(|p| p.used) {
+        let w = p.blocks as f64 / p.variance.max(1e-12).powi(2);
+        sw += w;
+        sx += w * p.mean;
+        sy += w * p.variance;
+        sxx += w * p.mean * p.mean;
+        sxy += w * p.mean * p.variance;
+    }
+    let det = sw * sxx - sx * sx;
+    if sw <= 0.0 {
+        return (0.0, 0.0);
+    }
+    if det.abs() <= 1e-12 * sw * sxx.max(1e-12) {
+        return (0.0, sy / sw);
+    }
+    let slope = (sw * sxy - sx * sy) / det;
+    let slope = slope.max(0.0);
+    (slope, (sy - slope * sx) / sw)
+}
+
+/// Fits the noise-level function of a plane whose values lie in [0, top].
+pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
+    let (blocks, clipping) = immerkaer::block_stats(p, top);
+    let blocks = immerkaer::unclipped(&blocks, clipping, top);
+    let mut points = if blocks.len() >= 8 { level_points(&blocks) } else { Vec::new() };
+    let (mut slope, mut intercept) = weighted_line(&points);
+    for _ in 0..3 {
+        let mut changed = false;
+        for pt in points.iter_mut() {
+            let f = (slope * pt.mean + intercept).max(1e-12);
+            let used = pt.variance <= f * (1.0 + ABOVE) && pt.variance >= f * (1.0 - BELOW);
+            changed |= used != pt.used;
+            pt.used = used;
+        }
+        if !changed || points.iter().filter(|p| p.used).count() < 2 {
+            break;
+        }
+        (slope, intercept) = weighted_line(&points);
+    }
+    if points.iter().filter(|p| p.used).count() < 2 {
+        // Too little left to fit: every point back, a constant level.
+        points.iter_mut().for_each(|p| p.used = true);
+        let c = NoiseLevelFunction {
+            slope: 0.0,
+            intercept: 0.0,
+            low: 0.0,
+            high: 0.0,
+            points: points.clone(),
+            spread: 0.0,
+            clipping,
+            reliable: false,
+        }
+        .constant_variance();
+        (slope, intercept) = (0.0, c);
+    }
+    let used: Vec<&LevelPoint> = points.iter().filter(|p| p.used).collect();
+    let low = used.iter().map(|p| p.mean).fold(f64::INFINITY, f64::min);
+    let high = used.iter().map(|p| p.mean).fold(f64::NEG_INFINITY, f64::max);
+    let (mut e2, mut n) = (0.0, 0.0);
+    for p in &used {
+        let f = (slope * p.mean + intercept).max(1e-12);
+        e2 += p.blocks as f64 * (p.variance / f - 1.0).powi(2);
+        n += p.blocks as f64;
+    }
+    let spread = if n > 0.0 { (e2 / n).sqrt() } else { 0.0 };
+    // A slope needs at least 3 points spanning a tenth of the range or more.
+    let reliable = used.len() >= 3 && high - low >= 0.1 * top.min(high.max(1.0));
+    NoiseLevelFunction {
+        slope,
+        intercept,
+        low: if low.is_finite() { low } else { 0.0 },
+        high: if high.is_finite() { high } else { 0.0 },
+        points,
+        spread,
+        clipping,
+        reliable,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::synth::Rng;
+
+    #[test]
+    fn white_noise_on_a_ramp_is_constant() {
+        // Invariant: white Gaussian noise of std 8 on an intensity ramp has var = 64 at every level,
+        // so the fit is (nearly) flat and not signal-dependent.
+        let mut r = Rng::new(7);
+        let p = Plane::from_fn(512, 512, |x, _| (20.0 + 0.4 * x as f64 + 8.0 * r.normal()) as f32);
+        let f = fit(&p, 255.0);
+        assert!(!f.signal_dependent(), "{f:?}");
+        assert!((f.variance(120.0) / 64.0 - 1.0).abs() < 0.1, "{}", f.variance(120.0));
+    }
+
+    #[test]
+    fn poisson_gaussian_gain_and_intercept_are_recovered() {
+        // Known truth by construction: y = offset + gain * Poisson(x) + N(0, read^2) on a smooth
+        // scene, so var(y) = gain (y - offset) + read^2. Gain within 10%; the line at the offset
+        // within 3% of the variance's span (an extrapolation: read noise is a small part of it at high gain).
+        for (gain, offset, read) in [(4.0, 100.0, 6.0), (2.0, 0.0, 3.0), (12.0, 500.0, 20.0)] {
+            let mut r = Rng::new(11);
+            let p = Plane::from_fn(600, 600, |x, y| {
+                let photons = 2.0 + 300.0 * (x as f64 / 600.0) * (0.5 + 0.5 * (y as f64 / 600.0));
+                (offset + gain * r.poisson(photons) + read * r.normal()) as f32
+            });
+            let f = fit(&p, 65535.0);
+            assert!(f.signal_dependent());
+            assert!((f.slope / gain - 1.0).abs() < 0.1, "gain {gain}: {}", f.slope);
+            let at_offset = f.slope * offset + f.intercept;
+            let span = gain * gain * 300.0;
+            assert!((at_offset - read * read).abs() < 0.03 * span, "gain {gain}: {at_offset} against {}", read * read);
+        }
+    }
+
+    #[test]
+    fn clipped_black_background_does_not_pull_the_level_down() {
+        // Invariant: half the image is black (true value 0, noise cut at 0), half at grey 120;
+        // the level comes from the unclipped half: sigma 25 within 10%.
+        let mut r = Rng::new(3);
+        let p = Plane::from_fn(512, 512, |x, _| {
+            let v = if x < 256 { 0.0 } else { 120.0 };
+            (v + 25.0 * r.normal()).round().clamp(0.0, 255.0) as f32
+        });
+        assert!(f64::from(p.data.iter().filter(|v| **v == 0.0).count() as u32) > 0.2 * 512.0 * 512.0);
+        let f = fit(&p, 255.0);
+        let s = f.constant_variance().sqrt();
+        assert!((s / 25.0 - 1.0).abs() < 0.1, "{s}");
+        let s2 = immerkaer::sigma_calm_blocks_clipped(&p, 255.0);
+        assert!((s2 / 25.0 - 1.0).abs() < 0.1, "{s2}");
+    }
+}
