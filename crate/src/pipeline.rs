@@ -7,9 +7,11 @@ use crate::error::Result;
 use crate::methods::{self, MethodOutput};
 use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
-use crate::noise::model::{self, ChannelNoise, NoiseReport, PlaneNoise};
+use crate::noise::model::{self, ChannelNoise, Dependence, NoiseReport, PlaneNoise};
+use crate::noise::nlf::NoiseLevelFunction;
+use crate::noise::vst::{CurveVst, Stabiliser};
 use crate::noise::spectrum::{self, NoiseSpectrum};
-use crate::noise::{self, vst::PhotonNoise, NoiseEstimate};
+use crate::noise::{self, NoiseEstimate};
 use crate::planes::{Image, Plane};
 use crate::progress::{Progress, SubProgress};
 use crate::settings::{Method, NoiseModel, Settings, Sigma};
@@ -59,8 +61,8 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
 /// borrowed, unless photon noise is stabilised), with the sigma and range the method works with
 /// and the noise report. [`method_planes`] gives the planes a method takes.
 pub struct Prepared<'a> {
-    /// Per input channel, when the working domain is photon noise stabilised.
-    pub photon: Option<Vec<PhotonNoise>>,
+    /// Per input channel, when the working domain is stabilised (photon noise or a measured curve).
+    pub stabilisers: Option<Vec<Stabiliser>>,
     pub working: Cow<'a, [Plane]>,
     pub range: f64,
     pub sigma: f64,
@@ -106,34 +108,69 @@ fn correlated_noise(working: &[Plane], range: f64, settings: &Settings) -> Optio
     Some((planes, sigma))
 }
 
+/// The root mean square noise std over the image in grey levels: the working domain's level
+/// carried back through each channel's variance curve (sampled every 7th pixel).
+fn mean_level(img: &Image, channels: &[ChannelNoise], dependence: Dependence, planes: &[PlaneNoise]) -> f64 {
+    let working_var = planes.iter().map(|p| p.level * p.level).sum::<f64>() / planes.len().max(1) as f64;
+    if dependence == Dependence::None {
+        return working_var.sqrt();
+    }
+    let (mut s, mut n) = (0.0, 0usize);
+    for (c, ch) in img.channels.iter().zip(channels) {
+        for v in c.data.iter().step_by(7) {
+            let y = f64::from(*v);
+            // d/dy of the transform is 1 / sqrt(curve): a unit of working variance is curve(y) grey levels^2.
+            s += match ch.photon {
+                Some(p) => (p.gain * (y - p.offset) + p.read_noise * p.read_noise).max(0.0),
+                None => ch.level_function.curve_variance(y),
+            };
+            n += 1;
+        }
+    }
+    (working_var * s / n.max(1) as f64).sqrt()
+}
+
 pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> {
     settings.validate()?;
     let top = f64::from(img.max_value());
     let fitting = settings.noise == NoiseModel::Auto && settings.sigma.value().is_none();
     let functions = model::fit_channels(&img.channels, top);
-    let use_photon = match settings.noise {
-        NoiseModel::Gaussian => false,
-        NoiseModel::Poisson => true,
-        NoiseModel::Auto => fitting && functions.iter().any(|f| f.signal_dependent()),
+    // Most channels must agree: one channel's dependence alone is too often texture or a colour cast.
+    let most = |f: fn(&NoiseLevelFunction) -> bool| 2 * functions.iter().filter(|x| f(x)).count() > functions.len();
+    let dependence = match settings.noise {
+        NoiseModel::Gaussian => Dependence::None,
+        NoiseModel::Poisson => Dependence::Photon,
+        NoiseModel::Auto if !fitting => Dependence::None,
+        NoiseModel::Auto if most(NoiseLevelFunction::signal_dependent) => Dependence::Photon,
+        NoiseModel::Auto if most(NoiseLevelFunction::brightness_dependent) => Dependence::Curve,
+        NoiseModel::Auto => Dependence::None,
     };
     let channels: Vec<ChannelNoise> = functions
         .into_iter()
         .map(|f| {
-            let photon = use_photon.then(|| model::photon_fit(&f, settings));
-            ChannelNoise { level_function: f, photon }
+            let photon = (dependence == Dependence::Photon).then(|| model::photon_fit(&f, settings));
+            ChannelNoise { level_function: f, photon, curve_used: dependence == Dependence::Curve }
         })
         .collect();
-    let photon: Option<Vec<PhotonNoise>> =
-        use_photon.then(|| channels.iter().filter_map(|c| c.photon.map(|p| p.noise())).collect());
-    let (working, range) = match &photon {
-        None => (Cow::Borrowed(img.channels.as_slice()), top),
-        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
-        Some(ph) => (
-            Cow::Owned(img.channels.iter().zip(ph).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect()),
-            ph.iter().map(|p| p.forward(top)).fold(0.0, f64::max),
+    let stabilisers: Option<Vec<Stabiliser>> = match dependence {
+        Dependence::None => None,
+        Dependence::Photon => Some(channels.iter().filter_map(|c| c.photon.map(|p| Stabiliser::Photon(p.noise()))).collect()),
+        Dependence::Curve => Some(
+            channels
+                .iter()
+                .map(|c| Stabiliser::Curve(CurveVst::new(top, |y| c.level_function.curve_variance(y))))
+                .collect(),
         ),
     };
-    let clip_top = if photon.is_some() { None } else { Some(top) };
+    let (working, range) = match &stabilisers {
+        None => (Cow::Borrowed(img.channels.as_slice()), top),
+        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
+        Some(st) => (
+            Cow::Owned(img.channels.iter().zip(st).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect()),
+            st.iter().map(|p| p.forward(top)).fold(0.0, f64::max),
+        ),
+    };
+    let clip_top = if stabilisers.is_some() { None } else { Some(top) };
     let estimates: Vec<NoiseEstimate> = working.iter().map(|p| noise::estimate(p, clip_top)).collect();
     let (mut sigma, estimated) = match settings.sigma {
         Sigma::Value(v) => (v, false),
@@ -155,19 +192,21 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
             .to_string()
     });
     let sentence = if fitting {
-        model::explain(use_photon, is_correlated, &channels, &planes)
+        model::explain(dependence, is_correlated, &channels, &planes)
     } else {
-        format!("{} noise, as the settings ask.", model::model_name(use_photon, false))
+        format!("{} noise, as the settings ask.", model::model_name(dependence, false))
     };
+    let mean_level = mean_level(img, &channels, dependence, &planes);
     let noise = NoiseReport {
-        model: model::model_name(use_photon, is_correlated).to_string(),
+        mean_level,
+        model: model::model_name(dependence, is_correlated),
         fitted: fitting,
         sentence,
         channels,
         planes,
         fallback,
     };
-    Ok(Prepared { photon, working, range, sigma, estimated, estimates, noise })
+    Ok(Prepared { stabilisers, working, range, sigma, estimated, estimates, noise })
 }
 
 /// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
@@ -211,7 +250,7 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
 pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> RunOutput {
-    let Prepared { photon, working, sigma, estimated, estimates, noise, .. } = prepared;
+    let Prepared { stabilisers, working, sigma, estimated, estimates, noise, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
     let planes = if planes.len() == 3 {
@@ -223,8 +262,8 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
     };
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     drop(working);
-    let stabilised = photon.is_some();
-    let out_planes = match &photon {
+    let stabilised = stabilisers.is_some();
+    let out_planes = match &stabilisers {
         None => planes,
         Some(ph) => planes.iter().zip(ph).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
     };

@@ -192,7 +192,10 @@ impl Settings {
     pub fn from_json(text: &str) -> Result<Settings> {
         let bad = |e: serde_json::Error| Error::BadSettings(format!("the settings file is not valid: {e}"));
         let mut value: serde_json::Value = serde_json::from_str(text).map_err(bad)?;
-        if value.get("version").and_then(serde_json::Value::as_u64) == Some(1) {
+        // Version 1 by its number, or a file without one that uses version 1's own fields.
+        let v1_fields = ["poisson_gain", "poisson_read_noise"].iter().any(|f| value.get(f).is_some());
+        let version = value.get("version").and_then(serde_json::Value::as_u64);
+        if version == Some(1) || (version.is_none() && v1_fields) {
             upgrade_v1(&mut value);
         }
         let s: Settings = serde_json::from_value(value).map_err(bad)?;
@@ -295,6 +298,8 @@ mod tests {
         let s = Settings::from_json(r#"{"version": 1, "noise": "poisson", "poisson_gain": 256}"#).unwrap();
         assert_eq!((s.noise, s.gain, s.read_noise, s.offset), (NoiseModel::Poisson, AutoOr::Value(256.0), AutoOr::Value(0.0), AutoOr::Value(0.0)));
         assert_eq!(Settings::default().noise, NoiseModel::Auto);
+        let s = Settings::from_json(r#"{"noise": "poisson", "poisson_gain": 4}"#).unwrap();
+        assert_eq!((s.gain, s.offset), (AutoOr::Value(4.0), AutoOr::Value(0.0)));
     }
 
     #[test]

@@ -109,12 +109,13 @@ def anscombe_inverse(d):
 
 def poisson_rows(exe, work):
     """Peak 10: counts = Poisson(clean / 255 * 10), PCG64(1234). Patchgraph reads them as a 16-bit PNG
-    with 256 grey levels per photon (settings poisson_gain 256); peers: Anscombe, OpenCV NLM on the
-    stabilised image scaled to 8 bits (h tuned on a grid), the same closed-form inverse."""
+    with 256 grey levels per photon, told so (gain 256, offset 0, no read noise) and with default
+    settings (the noise fitted); peers: Anscombe, OpenCV NLM on the stabilised image scaled to 8 bits
+    (h tuned on a grid), the same closed-form inverse."""
     peak = 10.0
     settings = os.path.join(work, "poisson.json")
     with open(settings, "w") as f:
-        json.dump({"noise": "poisson", "poisson_gain": 256.0}, f)
+        json.dump({"version": 2, "noise": "poisson", "gain": 256.0, "offset": 0.0, "read_noise": 0.0}, f)
     out = {}
     g = devset.grey_images()
     for name in ("camera512", "astronaut512"):
@@ -125,7 +126,10 @@ def poisson_rows(exe, work):
         opath = os.path.join(work, f"{name}-poisson-pg.png")
         run_patchgraph(exe, npath, opath, None, ["--settings", settings])
         est = io.imread(opath).astype(np.float64) / 256
-        out.setdefault("Patchgraph patch-graph, Anscombe inside", []).append(peak_signal_noise_ratio(lam, est, data_range=peak))
+        out.setdefault("Patchgraph patch-graph, told the gain", []).append(peak_signal_noise_ratio(lam, est, data_range=peak))
+        run_patchgraph(exe, npath, opath)
+        est = io.imread(opath).astype(np.float64) / 256
+        out.setdefault("Patchgraph patch-graph, default (noise fitted)", []).append(peak_signal_noise_ratio(lam, est, data_range=peak))
         d = anscombe(z)
         scale = 255.0 / d.max()
         d8 = u8(d * scale)

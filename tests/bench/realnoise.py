@@ -1,6 +1,6 @@
 """The real-noise part of the development set, built from the development images themselves.
 
-(a) Camera JPEGs by the "unprocessing" protocol (T. Brooks et al., "Unprocessing images for learned raw
+(a) Camera JPEGs (noise level = std of the noise before JPEG) by the "unprocessing" protocol (T. Brooks et al., "Unprocessing images for learned raw
     denoising", CVPR 2019): sRGB -> linear, inverse white balance (red gain 2.0, blue gain 1.7, fixed
     mid values of the published ranges; identity colour matrix), RGGB mosaic, noise of variance
     shot * x + read with log(read) = 2.18 log(shot) + 1.20 (natural logs; the read term is a variance,
@@ -71,6 +71,7 @@ def demosaic_bilinear(m):
 
 
 def camera_pipeline(srgb8, shot, rng):
+    """The noisy (or, with shot 0, clean) 8-bit sRGB image before JPEG."""
     lin = srgb_to_linear(srgb8 / 255.0) / WB
     raw = mosaic(lin)
     if shot > 0:
@@ -97,6 +98,7 @@ def camera_items(work):
         for shot in SHOTS:
             rng = np.random.Generator(np.random.PCG64(1234))
             noisy = camera_pipeline(img, shot, rng)
+            np.save(os.path.join(work, f"{name}-shot{shot}-before-jpeg.npy"), noisy)
             np_ = os.path.join(work, f"{name}-shot{shot}.jpg")
             with open(np_, "wb") as f:
                 f.write(jpeg(noisy))
@@ -155,17 +157,12 @@ def camera_rows(exe, work):
     for name, shot, cp, np_ in camera_items(os.path.join(work, "camera")):
         clean = io.imread(cp)
         noisy = np.asarray(Image.open(np_).convert("RGB"))
-        true_std = float(np.std(noisy.astype(np.float64) - clean))
+        # The noise's own std: before JPEG, which adds its own error to the image.
+        true_std = float(np.std(np.load(np_[:-4] + "-before-jpeg.npy").astype(np.float64) - clean))
         opath = np_[:-4] + "-pg.png"
         rep = run_cli(exe, np_, opath)
         pg = peak_signal_noise_ratio(clean, io.imread(opath), data_range=255)
-        if rep["stabilised"]:
-            # The fitted variance function's mean over the image, per channel, in grey levels.
-            var = [np.mean(np.maximum(c["photon"]["gain"] * (noisy[..., i] - c["photon"]["offset"]) + c["photon"]["read_noise"] ** 2, 0))
-                   for i, c in enumerate(rep["noise_model"]["channels"])]
-            eff = float(np.sqrt(np.mean(var)))
-        else:
-            eff = float(np.sqrt(np.mean(np.square([p["level"] for p in rep["noise_model"]["planes"]]))))
+        eff = rep["noise_model"]["mean_level"]
         peers = {}
         for k in (0.5, 0.7, 0.9, 1.1, 1.4):
             h = float(k * true_std)

@@ -26,12 +26,26 @@ impl PhotonFit {
     }
 }
 
+/// How the noise's dependence on brightness is handled before filtering.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum Dependence {
+    /// One level everywhere.
+    None,
+    /// Photon noise: the generalised Anscombe transform with gain, offset and read noise.
+    Photon,
+    /// Any other smooth dependence: the transform of the measured curve.
+    Curve,
+}
+
 /// One input channel: the fitted noise-level function and, when photon noise is used, its
 /// parameters.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ChannelNoise {
     pub level_function: NoiseLevelFunction,
     pub photon: Option<PhotonFit>,
+    /// True when this channel was stabilised with its measured curve.
+    pub curve_used: bool,
 }
 
 /// One plane the method works on (grey, or opponent colour, after any stabilisation): its level
@@ -58,6 +72,9 @@ pub struct NoiseReport {
     pub planes: Vec<PlaneNoise>,
     /// Set when the fit could not be trusted and the white estimate was used instead.
     pub fallback: Option<String>,
+    /// The noise std in the input's grey levels, as a root mean square over the image's pixels:
+    /// one number to compare with other estimates, whatever the model.
+    pub mean_level: f64,
 }
 
 /// Photon parameters for a channel: each from the settings where given, else from the fit. The
@@ -96,26 +113,34 @@ pub fn fit_channels(channels: &[Plane], top: f64) -> Vec<NoiseLevelFunction> {
 }
 
 /// The model's name from its two choices.
-pub fn model_name(photon: bool, correlated: bool) -> &'static str {
-    match (photon, correlated) {
-        (false, false) => "white Gaussian",
-        (true, false) => "Poisson-Gaussian",
-        (false, true) => "correlated Gaussian",
-        (true, true) => "correlated Poisson-Gaussian",
-    }
+pub fn model_name(dependence: Dependence, correlated: bool) -> String {
+    let base = match dependence {
+        Dependence::None => "white Gaussian",
+        Dependence::Photon => "Poisson-Gaussian",
+        Dependence::Curve => "brightness-dependent Gaussian",
+    };
+    if correlated { format!("correlated {}", base.trim_start_matches("white ")) } else { base.to_string() }
 }
 
 /// The plain sentence for a fitted model.
-pub fn explain(photon: bool, correlated: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
+pub fn explain(dependence: Dependence, correlated: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
     let mut s = String::new();
-    if photon {
-        let g = channels.iter().filter_map(|c| c.photon).map(|p| p.gain).sum::<f64>() / channels.len().max(1) as f64;
-        s.push_str(&format!(
-            "The noise grows with brightness (about {g:.3} grey levels per photon), so it is treated as photon \
-             noise with read noise and stabilised before filtering"
-        ));
-    } else {
-        s.push_str("The noise is about as strong in dark and bright areas, so one level is used");
+    match dependence {
+        Dependence::Photon => {
+            let g = channels.iter().filter_map(|c| c.photon).map(|p| p.gain).sum::<f64>() / channels.len().max(1) as f64;
+            s.push_str(&format!(
+                "The noise grows with brightness in a straight line (about {g:.3} grey levels per photon), so it \
+                 is treated as photon noise with read noise and evened out before filtering"
+            ));
+        }
+        Dependence::Curve => {
+            let r = channels.iter().map(|c| c.level_function.curve_ratio()).fold(0.0, f64::max);
+            s.push_str(&format!(
+                "The noise changes with brightness (its variance by up to {r:.1} times between dark and bright \
+                 areas, as a camera's tone curve makes it), so it is evened out with the measured curve before filtering"
+            ));
+        }
+        Dependence::None => s.push_str("The noise is about as strong in dark and bright areas, so one level is used"),
     }
     if correlated {
         let r = planes.iter().map(|p| p.colour_ratio).fold(0.0, f64::max);

@@ -39,6 +39,9 @@ pub struct NoiseLevelFunction {
     pub clipping: Clipping,
     /// Enough points over enough of the range to trust the slope.
     pub reliable: bool,
+    /// var(y) = c0 + c1 y + c2 y^2 through the same points: brightness dependence that is not
+    /// photon noise's straight line (a camera's gamma makes dark areas noisier than bright ones).
+    pub curve: [f64; 3],
 }
 
 const BINS: usize = 12;
@@ -59,6 +62,26 @@ impl NoiseLevelFunction {
     /// The variance grows with intensity by more than [`DEPENDENCE_RATIO`] over the data.
     pub fn signal_dependent(&self) -> bool {
         self.reliable && self.slope > 0.0 && self.variance(self.high) > DEPENDENCE_RATIO * self.variance(self.low).max(1e-12)
+    }
+
+    /// The quadratic curve's variance at y, held at its ends outside [low, high] and above a tenth
+    /// of its largest value there (a curve is trusted only where it was measured).
+    pub fn curve_variance(&self, y: f64) -> f64 {
+        let at = |y: f64| self.curve[0] + self.curve[1] * y + self.curve[2] * y * y;
+        let y = y.clamp(self.low, self.high);
+        let peak = (0..=16).map(|i| at(self.low + (self.high - self.low) * f64::from(i) / 16.0)).fold(0.0, f64::max);
+        at(y).max(0.1 * peak).max(1e-12)
+    }
+
+    /// Largest over smallest variance of the curve over [low, high].
+    pub fn curve_ratio(&self) -> f64 {
+        let v: Vec<f64> = (0..=16).map(|i| self.curve_variance(self.low + (self.high - self.low) * f64::from(i) / 16.0)).collect();
+        v.iter().copied().fold(0.0, f64::max) / v.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12)
+    }
+
+    /// The noise changes with brightness by more than [`DEPENDENCE_RATIO`], whatever the shape.
+    pub fn brightness_dependent(&self) -> bool {
+        self.reliable && self.curve_ratio() > DEPENDENCE_RATIO
     }
 
     /// The level of a constant fit: the weighted mean variance of the used points.
@@ -119,16 +142,50 @@ fn weighted_line(points: &[LevelPoint]) -> (f64, f64) {
     (slope, (sy - slope * sx) / sw)
 }
 
+/// Weighted least-squares quadratic through the used points (weights as for the line), solved
+/// by the 3 x 3 normal equations; falls back to the line when they are singular.
+fn weighted_quadratic(points: &[LevelPoint], line: (f64, f64)) -> [f64; 3] {
+    let mut a = [[0.0f64; 3]; 3];
+    let mut b = [0.0f64; 3];
+    // Centre and scale y for conditioning: t = (y - m) / s.
+    let used: Vec<&LevelPoint> = points.iter().filter(|p| p.used).collect();
+    let fallback = [line.1, line.0, 0.0];
+    if used.len() < 4 {
+        return fallback;
+    }
+    let m = used.iter().map(|p| p.mean).sum::<f64>() / used.len() as f64;
+    let sc = used.iter().map(|p| (p.mean - m).abs()).fold(0.0, f64::max).max(1e-9);
+    for p in &used {
+        let w = p.blocks as f64 / p.variance.max(1e-12).powi(2);
+        let t = (p.mean - m) / sc;
+        let basis = [1.0, t, t * t];
+        for i in 0..3 {
+            b[i] += w * basis[i] * p.variance;
+            for j in 0..3 {
+                a[i][j] += w * basis[i] * basis[j];
+            }
+        }
+    }
+    let Some(q) = nalgebra::Matrix3::from_fn(|i, j| a[i][j]).try_inverse() else { return fallback };
+    let c = q * nalgebra::Vector3::new(b[0], b[1], b[2]);
+    // Back to powers of y: c0 + c1 t + c2 t^2 with t = (y - m) / sc.
+    let (c0, c1, c2) = (c[0], c[1] / sc, c[2] / (sc * sc));
+    [c0 - c1 * m + c2 * m * m, c1 - 2.0 * c2 * m, c2]
+}
+
 /// Fits the noise-level function of a plane whose values lie in [0, top].
 pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
     let (blocks, clipping) = immerkaer::block_stats(p, top);
     let blocks = immerkaer::unclipped(&blocks, clipping, top);
     let mut points = if blocks.len() >= 8 { level_points(&blocks) } else { Vec::new() };
-    let (mut slope, mut intercept) = weighted_line(&points);
+    // Points far from the quadratic (free in shape, so it follows any smooth dependence) hold
+    // texture and are set aside; the line is then fitted to the same points.
+    let mut line = weighted_line(&points);
+    let mut curve = weighted_quadratic(&points, line);
     for _ in 0..3 {
         let mut changed = false;
         for pt in points.iter_mut() {
-            let f = (slope * pt.mean + intercept).max(1e-12);
+            let f = (curve[0] + curve[1] * pt.mean + curve[2] * pt.mean * pt.mean).max(1e-12);
             let used = pt.variance <= f * (1.0 + ABOVE) && pt.variance >= f * (1.0 - BELOW);
             changed |= used != pt.used;
             pt.used = used;
@@ -136,8 +193,10 @@ pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
         if !changed || points.iter().filter(|p| p.used).count() < 2 {
             break;
         }
-        (slope, intercept) = weighted_line(&points);
+        line = weighted_line(&points);
+        curve = weighted_quadratic(&points, line);
     }
+    let (mut slope, mut intercept) = line;
     if points.iter().filter(|p| p.used).count() < 2 {
         // Too little left to fit: every point back, a constant level.
         points.iter_mut().for_each(|p| p.used = true);
@@ -150,9 +209,11 @@ pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
             spread: 0.0,
             clipping,
             reliable: false,
+            curve: [0.0; 3],
         }
         .constant_variance();
         (slope, intercept) = (0.0, c);
+        curve = [c, 0.0, 0.0];
     }
     let used: Vec<&LevelPoint> = points.iter().filter(|p| p.used).collect();
     let low = used.iter().map(|p| p.mean).fold(f64::INFINITY, f64::min);
@@ -175,6 +236,7 @@ pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
         spread,
         clipping,
         reliable,
+        curve,
     }
 }
 
@@ -211,6 +273,24 @@ mod tests {
             let at_offset = f.slope * offset + f.intercept;
             let span = gain * gain * 300.0;
             assert!((at_offset - read * read).abs() < 0.03 * span, "gain {gain}: {at_offset} against {}", read * read);
+        }
+    }
+
+    #[test]
+    fn noise_that_falls_with_brightness_is_found_by_the_curve() {
+        // Known truth by construction: std 12 at black falling linearly to 4 at white (var from
+        // 144 to 16, as gamma makes a camera's noise); the line cannot follow it, the curve does.
+        let mut r = Rng::new(5);
+        let p = Plane::from_fn(512, 512, |x, _| {
+            let y = 10.0 + 0.45 * x as f64;
+            let std = 12.0 - 8.0 * y / 240.0;
+            (y + std * r.normal()) as f32
+        });
+        let f = fit(&p, 255.0);
+        assert!(!f.signal_dependent() && f.brightness_dependent(), "{f:?}");
+        for y in [40.0, 120.0, 200.0] {
+            let want = (12.0 - 8.0 * y / 240.0f64).powi(2);
+            assert!((f.curve_variance(y) / want - 1.0).abs() < 0.15, "at {y}: {} against {want}", f.curve_variance(y));
         }
     }
 
