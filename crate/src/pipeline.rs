@@ -212,7 +212,6 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
 /// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
 /// or not), for reports and the page.
 pub struct NoiseFit {
-    pub estimates: Vec<NoiseEstimate>,
     pub report: NoiseReport,
     pub spectra_8: Vec<Option<NoiseSpectrum>>,
 }
@@ -220,7 +219,7 @@ pub struct NoiseFit {
 pub fn fit_noise(img: &Image) -> Result<NoiseFit> {
     let p = prepare(img, &Settings::default())?;
     let spectra_8 = method_planes(&p).iter().map(|q| spectrum::estimate(q, 8)).collect();
-    Ok(NoiseFit { estimates: p.estimates, report: p.noise, spectra_8 })
+    Ok(NoiseFit { report: p.noise, spectra_8 })
 }
 
 /// The planes a method works on: the working planes, colour ones in the opponent space

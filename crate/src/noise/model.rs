@@ -92,7 +92,7 @@ pub fn photon_fit(f: &NoiseLevelFunction, settings: &Settings) -> PhotonFit {
         (Some(o), None) => (o, (intercept + gain * o).max(0.0).sqrt()),
         (None, Some(r)) => ((r * r - intercept) / gain, r),
         (None, None) => {
-            let o = f.low.max(0.0);
+            let o = f.black_level.max(0.0);
             let v = intercept + gain * o;
             if v >= 0.0 { (o, v.sqrt()) } else { (-intercept / gain, 0.0) }
         }

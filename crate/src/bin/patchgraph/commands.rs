@@ -231,7 +231,8 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
 pub fn noise(input: &Path, json_out: bool) -> CmdResult {
     let img = read_image(input, &DecodeLimits::default())?;
     let fit = pipeline::fit_noise(&img).map_err(|e| Failure::about(input, e))?;
-    let est = &fit.estimates;
+    // The white estimates in the input's own grey levels, whatever domain the model works in.
+    let est = &pipeline::estimate_noise(&img);
     let sigma = pipeline::blind_sigma(est);
     if json_out {
         let channels: Vec<_> = est
