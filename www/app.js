@@ -83,7 +83,7 @@ async function openSource(name, bytes, fromSample = false) {
     hideNoise($('noise-fit'));
     call('noise', { bytes: bytes.slice() })
       .then((n) => { if (app.source && app.source.bytes === bytes) showNoise($('noise-fit'), n); })
-      .catch(() => hideNoise($('noise-fit')));
+      .catch((e) => { hideNoise($('noise-fit')); console.warn(`noise fit: ${e.message}`); });
     if (hadOne && app.reference) dropReference('Reference set aside: the image changed. Load its clean reference to see PSNR and SSIM.');
   } catch (e) {
     $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info)}` : '';

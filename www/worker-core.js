@@ -14,7 +14,8 @@ export function installWorker(pg, ready, build) {
   const keys = ['rgba', 'png', 'residual', 'cuts', 'planes', 'num', 'den'];
   // Large arrays move to the page instead of being copied; `planes` is an array of them.
   const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k])
-    .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]).map((a) => a.buffer));
+    .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]))
+    .filter((a) => ArrayBuffer.isView(a)).map((a) => a.buffer);
   const progress = (fraction, stage) => self.postMessage({ progress: fraction, stage });
   self.onmessage = async (event) => {
     const m = event.data;

@@ -186,13 +186,9 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
     };
     let is_correlated = planes.iter().any(|p| p.spectrum.is_some());
     let unfit = channels.iter().any(|c| c.level_function.points.iter().filter(|p| p.used).count() < 2);
-    let fallback = (fitting && unfit).then(|| {
-        "the image has too few smooth areas to tell how the noise depends on brightness; one white level was \
-         estimated instead"
-            .to_string()
-    });
+    let fallback = (fitting && unfit).then(|| "the fit fell back to one white level".to_string());
     let sentence = if fitting {
-        model::explain(dependence, is_correlated, &channels, &planes)
+        model::explain(dependence, is_correlated, unfit, &channels, &planes)
     } else {
         format!("{} noise, as the settings ask.", model::model_name(dependence, false))
     };

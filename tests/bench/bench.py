@@ -24,6 +24,7 @@ from skimage.metrics import peak_signal_noise_ratio, structural_similarity
 from skimage.restoration import denoise_nl_means, denoise_tv_chambolle, estimate_sigma
 
 import devset
+import realnoise
 
 cv2.setNumThreads(1)
 SIGMAS = (10, 25, 50)
@@ -249,6 +250,7 @@ def main():
     pg_wall, cv_wall = float(np.median(pg_wall)), float(np.median(cv_wall))
 
     colour = [] if quick else colour_rows(exe, work)
+    real_lines, real_summary, _, _ = realnoise.table(exe, os.path.join(work, "real"))
     poisson = poisson_rows(exe, work)
     big12 = ""
     if not quick:
@@ -289,6 +291,14 @@ def main():
         "| method | sigma 10 | sigma 25 | sigma 50 |",
         "|---|---|---|---|",
         *colour,
+        "",
+        "## Real instruments' noise: PSNR (dB), Patchgraph with default settings (noise fitted)",
+        "",
+        realnoise.__doc__.strip().replace("\n", " "),
+        "",
+        *real_lines,
+        "",
+        "; ".join(real_summary) + ".",
         "",
         "## Poisson noise, peak 10: PSNR (dB) on the photon scale",
         "",

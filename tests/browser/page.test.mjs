@@ -55,6 +55,25 @@ test('the built-in sample loads on first visit with its reference', async () => 
   await page.screenshot({ path: join(OUT, 'first-visit.png'), fullPage: true });
 });
 
+test('the noise panel says what the fit found and draws its points and spectra', async () => {
+  // The same fit as `patchgraph noise --json` on the same file (the CLI is the reference here).
+  const cli = JSON.parse(execFileSync(CLI, ['noise', join(SAMPLES, 'cells-noisy.png'), '--json'], { encoding: 'utf8' }));
+  await page.waitForSelector('#noise-fit:not([hidden])', { timeout: 30000 });
+  await page.locator('#noise-fit summary').click();
+  assert.equal(await page.locator('#noise-fit .noise-model').textContent(), `Noise: ${cli.model}.`);
+  assert.ok((await page.locator('#noise-fit .noise-sentence').textContent()).startsWith(cli.explanation));
+  const inked = await page.evaluate(() => {
+    const c = document.querySelector('#noise-fit .noise-levels');
+    const d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
+    let n = 0;
+    for (let i = 3; i < d.length; i += 4) n += d[i] > 0 ? 1 : 0;
+    return n;
+  });
+  assert.ok(inked > 500, `the level plot is empty (${inked} pixels drawn)`);
+  assert.equal(await page.locator('#noise-fit .noise-spectra canvas').count(), cli.spectra_8x8.filter(Boolean).length);
+  await page.locator('#noise-fit').screenshot({ path: join(OUT, 'noise-panel.png') });
+});
+
 test('two settings run side by side, differ, and match the CLI', async () => {
   await page.setInputFiles('#file', join(SAMPLES, 'chart-noisy.png'));
   await page.waitForFunction(() => /chart-noisy\.png: 256/.test(document.getElementById('source-info').textContent));

@@ -122,10 +122,14 @@ pub fn model_name(dependence: Dependence, correlated: bool) -> String {
     if correlated { format!("correlated {}", base.trim_start_matches("white ")) } else { base.to_string() }
 }
 
-/// The plain sentence for a fitted model.
-pub fn explain(dependence: Dependence, correlated: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
+/// The plain sentence for a fitted model; `unfit` when too few smooth areas were found to see a
+/// dependence on brightness.
+pub fn explain(dependence: Dependence, correlated: bool, unfit: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
     let mut s = String::new();
     match dependence {
+        Dependence::None if unfit => {
+            s.push_str("Smooth areas were found at too few brightness levels to see whether the noise changes with brightness, so one level is used")
+        }
         Dependence::Photon => {
             let g = channels.iter().filter_map(|c| c.photon).map(|p| p.gain).sum::<f64>() / channels.len().max(1) as f64;
             s.push_str(&format!(
