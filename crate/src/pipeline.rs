@@ -9,6 +9,7 @@ use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
 use crate::noise::model::{self, ChannelNoise, Dependence, NoiseReport, PlaneNoise};
 use crate::noise::nlf::NoiseLevelFunction;
+use crate::noise::clip::ClipInverse;
 use crate::noise::vst::{CurveVst, Stabiliser};
 use crate::noise::spectrum::{self, NoiseSpectrum};
 use crate::noise::{self, NoiseEstimate};
@@ -63,6 +64,8 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
 pub struct Prepared<'a> {
     /// Per input channel, when the working domain is stabilised (photon noise or a measured curve).
     pub stabilisers: Option<Vec<Stabiliser>>,
+    /// Per input channel, when the image is clipped at black or white and not stabilised.
+    pub clip: Option<Vec<ClipInverse>>,
     pub working: Cow<'a, [Plane]>,
     pub range: f64,
     pub sigma: f64,
@@ -193,7 +196,25 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         format!("{} noise, as the settings ask.", model::model_name(dependence, false))
     };
     let mean_level = mean_level(img, &channels, dependence, &planes);
+    // Clipped noise biases results near black and white; undone for unstabilised noise.
+    let clip: Option<Vec<ClipInverse>> = (dependence == Dependence::None
+        && channels.iter().any(|c| c.level_function.clipping.low() || c.level_function.clipping.high()))
+    .then(|| {
+        channels
+            .iter()
+            .map(|c| {
+                let k = c.level_function.clipping;
+                ClipInverse::new(mean_level, top, k.low(), k.high())
+            })
+            .collect()
+    });
+    let sentence = if clip.is_some() {
+        format!("{sentence} Near black or white, where the image is cut off, the result is corrected for the noise the cut removed.")
+    } else {
+        sentence
+    };
     let noise = NoiseReport {
+        clip_corrected: clip.is_some(),
         mean_level,
         model: model::model_name(dependence, is_correlated),
         fitted: fitting,
@@ -202,7 +223,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         planes,
         fallback,
     };
-    Ok(Prepared { stabilisers, working, range, sigma, estimated, estimates, noise })
+    Ok(Prepared { stabilisers, clip, working, range, sigma, estimated, estimates, noise })
 }
 
 /// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
@@ -245,7 +266,7 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
 pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> RunOutput {
-    let Prepared { stabilisers, working, sigma, estimated, estimates, noise, .. } = prepared;
+    let Prepared { stabilisers, clip, working, sigma, estimated, estimates, noise, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
     let planes = if planes.len() == 3 {
@@ -258,9 +279,10 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     drop(working);
     let stabilised = stabilisers.is_some();
-    let out_planes = match &stabilisers {
-        None => planes,
-        Some(ph) => planes.iter().zip(ph).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
+    let out_planes = match (&stabilisers, &clip) {
+        (None, None) => planes,
+        (None, Some(ci)) => planes.iter().zip(ci).map(|(p, c)| map_plane(p, |d| c.apply(d))).collect(),
+        (Some(st), _) => planes.iter().zip(st).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
     };
     RunOutput {
         image: img.with_channels(out_planes),

@@ -141,36 +141,69 @@ pub fn calm_sigma_at(blocks: &[BlockStat], q: f64, bias: f64) -> Option<f64> {
     Some(SCALE * v / bias)
 }
 
-/// Blocks whose noise was not cut by clipping: their mean lies more than `CLIP_MARGIN` sigmas
-/// from a limit that the data reach. Found by iterating, since the first sigma (from clipped
-/// blocks too) is low.
+/// Blocks whose mean lies within `CLIP_MARGIN` sigmas of a limit that the data reach have had
+/// their noise cut there.
 const CLIP_MARGIN: f64 = 2.5;
 
-pub fn unclipped(blocks: &[BlockStat], clip: Clipping, top: f64) -> Vec<BlockStat> {
-    let mut kept = blocks.to_vec();
+/// The noise std of a flat block read from the side of its median that clipping did not reach:
+/// for true values at or above 0 at most half the samples clip, so the median and everything
+/// beyond it are intact, and the root mean square distance beyond the median is sigma (the
+/// half-normal's second moment). `low`: clipped at the bottom (read above the median).
+fn one_sided_sigma(p: &Plane, bx: usize, by: usize, low: bool) -> f64 {
+    let mut v: Vec<f64> = (0..BLOCK)
+        .flat_map(|r| (0..BLOCK).map(move |c| (r, c)))
+        .map(|(r, c)| f64::from(p.data[(1 + by * BLOCK + r) * p.width + 1 + bx * BLOCK + c]))
+        .collect();
+    v.sort_by(f64::total_cmp);
+    let med = 0.5 * (v[v.len() / 2 - 1] + v[v.len() / 2]);
+    let side: Vec<f64> = v.iter().filter(|x| if low { **x > med } else { **x < med }).map(|x| (x - med).powi(2)).collect();
+    // Samples equal to the median (rounded data) count on the far side with zero distance.
+    let n = v.len() / 2;
+    (side.iter().sum::<f64>() / n.max(1) as f64).sqrt()
+}
+
+/// The blocks with those near a clipped limit measured from their unclipped side instead (their
+/// response replaced by the equivalent value), found by iterating, since the first sigma (from
+/// clipped blocks too) is low. Texture left in such a block only raises it, and the calm quantile
+/// passes over it.
+pub fn unclipped(p: &Plane, blocks: &[BlockStat], clip: Clipping, top: f64) -> Vec<BlockStat> {
     if !clip.low() && !clip.high() {
-        return kept;
+        return blocks.to_vec();
     }
+    let bw = (p.width - 2) / BLOCK;
     let mut sigma = calm_sigma(blocks).unwrap_or(0.0);
+    let mut out = blocks.to_vec();
     for _ in 0..4 {
         let m = CLIP_MARGIN * sigma;
-        let next: Vec<BlockStat> = blocks
+        out = blocks
             .iter()
-            .filter(|b| (!clip.low() || b.mean > m) && (!clip.high() || b.mean < top - m))
-            .copied()
-            .collect();
-        match calm_sigma(&next) {
-            Some(s) => {
-                kept = next;
-                if (s - sigma).abs() <= 1e-3 * sigma {
-                    break;
+            .enumerate()
+            .map(|(i, b)| {
+                let (bx, by) = (i % bw, i / bw);
+                let near_low = clip.low() && b.mean <= m;
+                let near_high = clip.high() && b.mean >= top - m;
+                if near_low || near_high {
+                    // (Its calm-quartile spread is a little narrower than the responses', so a
+                    // wholly clipped image reads about 2% high: common practice accepts that.)
+                    BlockStat { mean: b.mean, response: one_sided_sigma(p, bx, by, near_low) / SCALE }
+                } else {
+                    *b
                 }
-                sigma = s;
-            }
-            None => break,
+            })
+            .collect();
+        match calm_sigma(&out) {
+            Some(s) if (s - sigma).abs() > 1e-3 * sigma => sigma = s,
+            _ => break,
         }
     }
-    kept
+    out
+}
+
+/// The blocks away from any clipped limit (the noise-level function is fitted on these only:
+/// near a limit the dependence on brightness cannot be told from the clipping).
+pub fn away_from_clipping(blocks: &[BlockStat], clip: Clipping, top: f64, sigma: f64) -> Vec<BlockStat> {
+    let m = CLIP_MARGIN * sigma;
+    blocks.iter().filter(|b| (!clip.low() || b.mean > m) && (!clip.high() || b.mean < top - m)).copied().collect()
 }
 
 /// The calm-block variant; falls back to the global estimate on images with fewer than 8 blocks.
@@ -180,7 +213,7 @@ pub fn sigma_calm_blocks_clipped(p: &Plane, top: f64) -> f64 {
         return 0.0;
     }
     let (blocks, clip) = block_stats(p, top);
-    calm_sigma(&unclipped(&blocks, clip, top)).unwrap_or_else(|| sigma(p))
+    calm_sigma(&unclipped(p, &blocks, clip, top)).unwrap_or_else(|| sigma(p))
 }
 
 /// The calm-block variant with no range limits (no clipping considered).

@@ -1,5 +1,6 @@
 //! Noise level estimation and variance-stabilising transforms.
 
+pub mod clip;
 pub mod immerkaer;
 pub mod model;
 pub mod nlf;

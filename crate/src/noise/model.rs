@@ -72,6 +72,8 @@ pub struct NoiseReport {
     pub planes: Vec<PlaneNoise>,
     /// Set when the fit could not be trusted and the white estimate was used instead.
     pub fallback: Option<String>,
+    /// True when results near black or white were corrected for noise the clipping had cut off.
+    pub clip_corrected: bool,
     /// The noise std in the input's grey levels, as a root mean square over the image's pixels:
     /// one number to compare with other estimates, whatever the model.
     pub mean_level: f64,

@@ -197,7 +197,9 @@ fn darkest_level(blocks: &[BlockStat]) -> f64 {
 /// Fits the noise-level function of a plane whose values lie in [0, top].
 pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
     let (blocks, clipping) = immerkaer::block_stats(p, top);
-    let blocks = immerkaer::unclipped(&blocks, clipping, top);
+    let corrected = immerkaer::unclipped(p, &blocks, clipping, top);
+    let sigma = immerkaer::calm_sigma(&corrected).unwrap_or(0.0);
+    let blocks = immerkaer::away_from_clipping(&corrected, clipping, top, sigma);
     let black_level = darkest_level(&blocks);
     let mut points = if blocks.len() >= 8 { level_points(&blocks) } else { Vec::new() };
     // Points far from the quadratic (free in shape, so it follows any smooth dependence) hold
