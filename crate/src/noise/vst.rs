@@ -91,6 +91,9 @@ impl CurveVst {
 pub enum Stabiliser {
     Photon(PhotonNoise),
     Curve(CurveVst),
+    /// Noise of one level per channel but different levels across colour channels: each channel
+    /// multiplied by this factor so all carry the same level before the colour transform mixes them.
+    Scale(f64),
 }
 
 impl Stabiliser {
@@ -98,12 +101,14 @@ impl Stabiliser {
         match self {
             Stabiliser::Photon(p) => p.forward(y),
             Stabiliser::Curve(c) => c.forward(y),
+            Stabiliser::Scale(k) => y * k,
         }
     }
     pub fn inverse(&self, d: f64) -> f64 {
         match self {
             Stabiliser::Photon(p) => p.inverse(d),
             Stabiliser::Curve(c) => c.inverse(d),
+            Stabiliser::Scale(k) => d / k,
         }
     }
 }
