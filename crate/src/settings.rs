@@ -109,6 +109,19 @@ impl Default for PixelGraphSettings {
     }
 }
 
+/// How the graph across a group of patches is weighted.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum GroupGraph {
+    /// Weight 1 between two patches whose coarse structure differs by no more than the noise
+    /// explains, falling off beyond: flat groups get a uniform graph, structured ones a graph.
+    NoiseTested,
+    /// The SSIM of the patches' coarse structure (version 1's only choice).
+    Similarity,
+    /// All weights 1: a fixed basis (the DCT across the group), for comparison.
+    Uniform,
+}
+
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PatchGraphSettings {
@@ -128,6 +141,8 @@ pub struct PatchGraphSettings {
     pub min_similarity: f64,
     /// Side of a tile of reference positions, in pixels (memory per tile; results do not depend on it).
     pub tile_size: u32,
+    /// How the graph across a group is weighted.
+    pub group_graph: GroupGraph,
 }
 
 impl Default for PatchGraphSettings {
@@ -141,6 +156,7 @@ impl Default for PatchGraphSettings {
             threshold: 2.7,
             min_similarity: 0.0,
             tile_size: 64,
+            group_graph: GroupGraph::NoiseTested,
         }
     }
 }
@@ -261,6 +277,11 @@ fn upgrade_v1(v: &mut serde_json::Value) {
     map.insert("gain".into(), gain);
     map.insert("read_noise".into(), read);
     map.insert("offset".into(), json!(0.0));
+    if let Some(Value::Object(pg)) = map.get_mut("patch_graph") {
+        pg.entry("group_graph").or_insert(json!("similarity"));
+    } else {
+        map.insert("patch_graph".into(), json!({"group_graph": "similarity"}));
+    }
 }
 
 #[cfg(test)]

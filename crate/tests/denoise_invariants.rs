@@ -165,3 +165,47 @@ fn the_group_of_a_clicked_pixel_covers_it_and_is_ranked() {
     // Stripes of period 12: the best matches sit at horizontal shifts that are multiples of 12.
     assert!(g.positions[1..4].iter().all(|&(x, _)| x.abs_diff(rx) % 12 == 0), "{:?}", &g.positions[..4]);
 }
+
+/// Lag-1 (horizontal) autocorrelation and std of a field.
+fn lag1_and_std(v: &[f64], w: usize) -> (f64, f64) {
+    let n = v.len() as f64;
+    let m = v.iter().sum::<f64>() / n;
+    let var = v.iter().map(|x| (x - m).powi(2)).sum::<f64>() / n;
+    let (mut c, mut k) = (0.0, 0.0);
+    for (i, x) in v.iter().enumerate() {
+        if (i + 1) % w != 0 {
+            c += (x - m) * (v[i + 1] - m);
+            k += 1.0;
+        }
+    }
+    (c / k / var, var.sqrt())
+}
+
+#[test]
+fn flat_noise_leaves_a_white_residual_and_averages_down_with_group_size() {
+    // Closed form: averaging N independent noisy copies of a patch leaves sigma / sqrt(N) of the
+    // noise, and overlapping aggregation can only lower it; so the result's deviation from the flat
+    // value stays below sigma / sqrt(N) and falls as groups grow. The residual (input - result) is
+    // the noise less a smooth part of variance at most sigma^2 / N, so its lag-1 correlation is
+    // at most about 2 / N in size, plus sampling error 3 / sqrt(pixels) (white noise has 0).
+    let (w, h, sigma) = (160usize, 160usize, 20.0f64);
+    let mut r = patchgraph::synth::Rng::new(99);
+    let noisy = Plane::from_fn(w, h, |_, _| (128.0 + sigma * r.normal()) as f32);
+    let img = grey(noisy.clone());
+    let mut last = f64::INFINITY;
+    for n in [8u32, 16, 32] {
+        let mut s = patch(sigma, 64);
+        s.patch_graph.group_size_hard = n;
+        s.patch_graph.group_size_wiener = n;
+        let out = pipeline::denoise(&img, &s, &NoProgress).unwrap();
+        let d: Vec<f64> = out.image.channels[0].data.iter().map(|v| f64::from(*v) - 128.0).collect();
+        let (_, dev) = lag1_and_std(&d, w);
+        assert!(dev < sigma / f64::from(n).sqrt(), "group {n}: deviation {dev}");
+        assert!(dev < last, "group {n}: deviation {dev} did not fall below {last}");
+        last = dev;
+        let res: Vec<f64> = noisy.data.iter().zip(&out.image.channels[0].data).map(|(a, b)| f64::from(a - b)).collect();
+        let (lag1, _) = lag1_and_std(&res, w);
+        let bound = 2.0 / f64::from(n) + 3.0 / ((w * h) as f64).sqrt();
+        assert!(lag1.abs() < bound, "group {n}: residual lag-1 correlation {lag1} beyond {bound}");
+    }
+}

@@ -20,7 +20,7 @@ use crate::patch::transform::{axpy, dct2, dct_matrix, graph_fourier_basis, idct2
 use crate::patch::Group;
 use crate::planes::Plane;
 use crate::progress::{check, Progress, SubProgress};
-use crate::settings::PatchGraphSettings;
+use crate::settings::{GroupGraph, PatchGraphSettings};
 
 /// Parameters of one run after the noise-dependent profile is applied.
 #[derive(Clone, Copy, Debug)]
@@ -34,6 +34,7 @@ pub struct Profile {
     pub min_similarity: f64,
     pub beta: f64,
     pub tile: usize,
+    pub group_graph: GroupGraph,
 }
 
 /// Patch size 0 means "by noise level": 8, or 12 above sigma 40 on the 8-bit scale, where larger
@@ -50,6 +51,7 @@ pub fn profile(s: &PatchGraphSettings, sigma8: f64) -> Profile {
         min_similarity: s.min_similarity,
         beta: 2.0,
         tile: s.tile_size as usize,
+        group_graph: s.group_graph,
     }
 }
 
@@ -78,30 +80,61 @@ fn low_freq_indices(k: usize) -> Vec<usize> {
     (0..k * k).filter(|&i| i / k + i % k <= 3).collect()
 }
 
-/// Weights of the group graph: SSIM between the patches' low-frequency parts, clamped at 0.
-/// `lf_noise` is the noise variance the low frequencies (DC left out) add to a patch variance.
-fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, lf_noise: f64) -> Vec<f64> {
+/// Weights of the group graph from the patches' low-frequency DCT parts (the coarse structure,
+/// which noise disturbs least). `noise` is the noise variance summed over those coefficients
+/// (DC included), `noisy` whether the coefficients carry it (stage 1) or come from the cleaner
+/// basic estimate (stage 2).
+fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise: f64, noisy: bool, kind: GroupGraph) -> Vec<f64> {
     let coeffs: Vec<&[f32]> = flat.chunks(k * k).collect();
     let n = coeffs.len();
-    let kk = (k * k) as f64;
-    let c1 = (0.01 * range).powi(2);
-    let c2 = (0.03 * range).powi(2);
-    // Mean from the DC coefficient (sum / k); variance and covariance from the other low frequencies.
-    let nv = lf_noise;
-    let mean: Vec<f64> = coeffs.iter().map(|c| f64::from(c[0]) / k as f64).collect();
-    let var: Vec<f64> =
-        coeffs.iter().map(|c| (lf[1..].iter().map(|&i| f64::from(c[i]).powi(2)).sum::<f64>() / kk - nv).max(0.0)).collect();
     let mut w = vec![0.0; n * n];
-    for i in 0..n {
-        for j in i + 1..n {
-            let cov = lf[1..].iter().map(|&f| f64::from(coeffs[i][f]) * f64::from(coeffs[j][f])).sum::<f64>() / kk;
-            let s = patch_ssim(mean[i], mean[j], var[i], var[j], cov, c1, c2).max(0.0);
-            w[i * n + j] = s;
-            w[j * n + i] = s;
+    let mut set = |i: usize, j: usize, v: f64| {
+        w[i * n + j] = v;
+        w[j * n + i] = v;
+    };
+    match kind {
+        GroupGraph::Uniform => (0..n).for_each(|i| (i + 1..n).for_each(|j| set(i, j, 1.0))),
+        GroupGraph::NoiseTested => {
+            // Two noisy patches of the same structure differ by 2 x the noise on average; only
+            // the excess over that is structure, measured in units of the same noise.
+            let scale = 2.0 * noise.max(1e-12);
+            // The expected difference plus a margin of three of its own stds (a chi-square of
+            // |lf| terms: relative std sqrt(2 / |lf|)), so that a flat group's weights are all
+            // exactly 1 rather than 1 less a little noise, whose eigenvectors would follow it.
+            let margin = 4.5 * (2.0 / lf.len() as f64).sqrt() * scale;
+            let expected = if noisy { scale + margin } else { margin };
+            for i in 0..n {
+                for j in i + 1..n {
+                    let d: f64 = lf.iter().map(|&f| (f64::from(coeffs[i][f]) - f64::from(coeffs[j][f])).powi(2)).sum();
+                    set(i, j, (-(d - expected).max(0.0) / (TESTED_SCALE * scale)).exp());
+                }
+            }
+        }
+        GroupGraph::Similarity => {
+            let kk = (k * k) as f64;
+            let c1 = (0.01 * range).powi(2);
+            let c2 = (0.03 * range).powi(2);
+            // Mean from the DC coefficient (sum / k); variance and covariance from the other low
+            // frequencies, with their noise taken out of the variances.
+            let nv = if noisy { (noise - noise / lf.len() as f64) / kk } else { 0.0 };
+            let mean: Vec<f64> = coeffs.iter().map(|c| f64::from(c[0]) / k as f64).collect();
+            let var: Vec<f64> = coeffs
+                .iter()
+                .map(|c| (lf[1..].iter().map(|&i| f64::from(c[i]).powi(2)).sum::<f64>() / kk - nv).max(0.0))
+                .collect();
+            for i in 0..n {
+                for j in i + 1..n {
+                    let cov = lf[1..].iter().map(|&f| f64::from(coeffs[i][f]) * f64::from(coeffs[j][f])).sum::<f64>() / kk;
+                    set(i, j, patch_ssim(mean[i], mean[j], var[i], var[j], cov, c1, c2).max(0.0));
+                }
+            }
         }
     }
     w
 }
+
+/// How fast a noise-tested weight falls with the excess difference, in units of twice the noise.
+const TESTED_SCALE: f64 = 4.0;
 
 /// The noise of one plane per coefficient of the k x k patch transform: variance, the hard
 /// threshold (lambda std) and the variance relative to sigma^2 (exactly 1 for white noise, so the
@@ -144,7 +177,8 @@ pub struct Stage<'a> {
     lf: Vec<usize>,
     /// Per plane.
     noise: Vec<CoeffNoise>,
-    /// Noise variance of a luminance patch (matching) and of its low-frequency part (group graph).
+    /// Noise variance of a luminance patch (matching), and summed over its low-frequency
+    /// coefficients, DC included (group graph).
     match_var: f64,
     lf_var: f64,
 }
@@ -185,9 +219,10 @@ impl<'a> Stage<'a> {
             (0..noisy.len()).map(|c| CoeffNoise::new(k, sigma, prof.lambda, spectra.map(|sp| &sp[c]))).collect();
         let lf = low_freq_indices(k);
         let kk = (k * k) as f64;
+        let _ = kk;
         let (match_var, lf_var) = match spectra {
-            Some(sp) => (sp[0].pixel_variance(), lf[1..].iter().map(|&i| sp[0].variances[i]).sum::<f64>() / kk),
-            None => (sigma * sigma, sigma * sigma * (lf.len() - 1) as f64 / kk),
+            Some(sp) => (sp[0].pixel_variance(), lf.iter().map(|&i| sp[0].variances[i]).sum::<f64>()),
+            None => (sigma * sigma, sigma * sigma * lf.len() as f64),
         };
         Ok(Stage {
             noisy,
@@ -276,13 +311,14 @@ impl<'a> Stage<'a> {
         let noisy_c: Vec<Vec<f32>> = noisy.iter().map(|p| self.patch_coeffs(p, group)).collect();
         let basic_c: Option<Vec<Vec<f32>>> = basic.map(|b| b.iter().map(|p| self.patch_coeffs(p, group)).collect());
         // The group graph comes from the cleanest luminance available.
-        let (graph_src, nv) = match &basic_c {
-            Some(b) => (&b[0], 0.0),
-            None => (&noisy_c[0], self.lf_var),
+        let graph_src = match &basic_c {
+            Some(b) => &b[0],
+            None => &noisy_c[0],
         };
         // u[i n + j]: entry i of the j-th graph Fourier vector.
         let u: Vec<f32> = if n > 1 {
-            let m = graph_fourier_basis(&group_weights(graph_src, k, &self.lf, self.range, nv), n);
+            let weights = group_weights(graph_src, k, &self.lf, self.range, self.lf_var, basic_c.is_none(), self.prof.group_graph);
+            let m = graph_fourier_basis(&weights, n);
             (0..n * n).map(|idx| m[(idx / n, idx % n)] as f32).collect()
         } else {
             vec![1.0]
