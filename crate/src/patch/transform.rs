@@ -101,7 +101,7 @@ pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
         for j in 0..n {
             if i != j {
                 let w = weights[i * n + j];
-                l[(i, j)] = -w;
+                l[(i, j)] -= w;
                 l[(i, i)] += w;
             }
         }
