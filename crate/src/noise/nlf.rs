@@ -198,10 +198,30 @@ fn darkest_level(blocks: &[BlockStat]) -> f64 {
 pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
     let (blocks, clipping) = immerkaer::block_stats(p, top);
     let corrected = immerkaer::unclipped(p, &blocks, clipping, top);
-    let sigma = immerkaer::calm_sigma(&corrected).unwrap_or(0.0);
-    let blocks = immerkaer::away_from_clipping(&corrected, clipping, top, sigma);
-    let black_level = darkest_level(&blocks);
-    let mut points = if blocks.len() >= 8 { level_points(&blocks) } else { Vec::new() };
+    if !clipping.low() && !clipping.high() {
+        return fit_blocks(&corrected, clipping, top);
+    }
+    // Near a limit the data reach, the noise may have been cut (or, for photon counts, be
+    // genuinely small: many exact zeros are both). A first fit over every block gives the local
+    // noise level, and blocks within 2.5 local stds of a reached limit are left out of the second.
+    let first = fit_blocks(&corrected, clipping, top);
+    if first.signal_dependent() && first.variance(first.low) < 0.25 * first.variance(first.high) {
+        // Photon counts: the noise grows fourfold or more from the darkest to the brightest
+        // level, so the many exact zeros are data (no photon), not noise cut off below 0.
+        return first;
+    }
+    let local = |m: f64| 2.5 * first.curve_variance(m).sqrt();
+    let kept: Vec<BlockStat> = corrected
+        .iter()
+        .filter(|b| (!clipping.low() || b.mean > local(b.mean)) && (!clipping.high() || b.mean < top - local(b.mean)))
+        .copied()
+        .collect();
+    fit_blocks(&kept, clipping, top)
+}
+
+fn fit_blocks(blocks: &[BlockStat], clipping: Clipping, top: f64) -> NoiseLevelFunction {
+    let black_level = darkest_level(blocks);
+    let mut points = if blocks.len() >= 8 { level_points(blocks) } else { Vec::new() };
     // Points far from the quadratic (free in shape, so it follows any smooth dependence) hold
     // texture and are set aside; the line is then fitted to the same points.
     let mut line = weighted_line(&points);
