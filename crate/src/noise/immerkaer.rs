@@ -199,13 +199,6 @@ pub fn unclipped(p: &Plane, blocks: &[BlockStat], clip: Clipping, top: f64) -> V
     out
 }
 
-/// The blocks away from any clipped limit (the noise-level function is fitted on these only:
-/// near a limit the dependence on brightness cannot be told from the clipping).
-pub fn away_from_clipping(blocks: &[BlockStat], clip: Clipping, top: f64, sigma: f64) -> Vec<BlockStat> {
-    let m = CLIP_MARGIN * sigma;
-    blocks.iter().filter(|b| (!clip.low() || b.mean > m) && (!clip.high() || b.mean < top - m)).copied().collect()
-}
-
 /// The calm-block variant; falls back to the global estimate on images with fewer than 8 blocks.
 /// Blocks whose noise was clipped at 0 or at `top` are left out when enough others remain.
 pub fn sigma_calm_blocks_clipped(p: &Plane, top: f64) -> f64 {
