@@ -51,3 +51,54 @@ impl Rng {
         k
     }
 }
+
+/// e^x from basic IEEE operations only (range reduction to r in [-ln2/2, ln2/2], a degree-13
+/// Taylor polynomial, then a power of two set in the exponent bits), so that native and wasm
+/// builds compute the same bits: the platform's `exp` differs between them in the last place,
+/// and results the page must reproduce byte for byte depend on it. Relative error below 1e-15.
+pub fn exp_same_everywhere(x: f64) -> f64 {
+    if x.is_nan() {
+        return x;
+    }
+    if x > 709.0 {
+        return f64::INFINITY;
+    }
+    if x < -745.0 {
+        return 0.0;
+    }
+    // ln 2 split in two (fdlibm's constants; the high part has trailing zero bits, so k * HI is
+    // exact) to keep the reduction accurate for large |k|.
+    const LN2_HI: f64 = 6.931_471_803_691_238_164_90e-1;
+    const LN2_LO: f64 = 1.908_214_929_270_587_700_02e-10;
+    let k = (x / std::f64::consts::LN_2).round();
+    let r = (x - k * LN2_HI) - k * LN2_LO;
+    let mut term = 1.0;
+    let mut sum = 1.0;
+    for n in 1..=13 {
+        term = term * r / f64::from(n);
+        sum += term;
+    }
+    // 2^k in two steps so that k down to -1074 stays representable.
+    let half = (k / 2.0).trunc();
+    let pow2 = |e: f64| f64::from_bits(((e as i64 + 1023) as u64) << 52);
+    sum * pow2(half) * pow2(k - half)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::exp_same_everywhere;
+
+    #[test]
+    fn exp_matches_the_platform_to_rounding() {
+        // Reference: the platform's own exp, within a few units in the last place.
+        for i in -700..=700 {
+            let x = f64::from(i) * 0.37;
+            if x.abs() > 700.0 {
+                continue;
+            }
+            let (a, b) = (exp_same_everywhere(x), x.exp());
+            assert!(((a - b) / b).abs() < 1e-14, "{x}: {a} against {b}");
+        }
+        assert_eq!(exp_same_everywhere(0.0), 1.0);
+    }
+}

@@ -21,6 +21,7 @@ use crate::patch::Group;
 use crate::planes::Plane;
 use crate::progress::{check, Progress, SubProgress};
 use crate::settings::{GroupGraph, PatchGraphSettings};
+use crate::synth::exp_same_everywhere;
 
 /// Parameters of one run after the noise-dependent profile is applied.
 #[derive(Clone, Copy, Debug)]
@@ -106,7 +107,8 @@ fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise: f64, n
             for i in 0..n {
                 for j in i + 1..n {
                     let d: f64 = lf.iter().map(|&f| (f64::from(coeffs[i][f]) - f64::from(coeffs[j][f])).powi(2)).sum();
-                    set(i, j, (-(d - expected).max(0.0) / (TESTED_SCALE * scale)).exp());
+                    // Not f64::exp: native and wasm builds must give the same bits (see synth).
+                    set(i, j, exp_same_everywhere(-(d - expected).max(0.0) / (TESTED_SCALE * scale)));
                 }
             }
         }

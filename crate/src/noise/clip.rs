@@ -4,10 +4,13 @@
 //! returns a background that is too bright. Inverting m maps the estimate back to mu (A. Foi,
 //! "Clipped noisy images: heteroskedastic modeling and practical denoising", Signal Processing
 //! 2009). The two ends are treated separately, which holds while the range is many sigmas wide.
+//! Built on [`exp_same_everywhere`] so that the page's table is the command line's, bit for bit.
+
+use crate::synth::exp_same_everywhere;
 
 /// phi(t), the standard normal density.
 fn density(t: f64) -> f64 {
-    (-0.5 * t * t).exp() / (2.0 * std::f64::consts::PI).sqrt()
+    exp_same_everywhere(-0.5 * t * t) / (2.0 * std::f64::consts::PI).sqrt()
 }
 
 /// Phi(t) through erfc, by the Chebyshev fit of W. H. Press et al., Numerical Recipes (2nd ed.,
@@ -16,15 +19,15 @@ pub fn normal_cdf(t: f64) -> f64 {
     let x = -t / std::f64::consts::SQRT_2;
     let z = x.abs();
     let u = 1.0 / (1.0 + 0.5 * z);
-    let erfc = u
-        * (-z * z - 1.265_512_23
+    let erfc = u * exp_same_everywhere(
+        -z * z - 1.265_512_23
             + u * (1.000_023_68
                 + u * (0.374_091_96
                     + u * (0.096_784_18
                         + u * (-0.186_288_06
                             + u * (0.278_868_07
-                                + u * (-1.135_203_98 + u * (1.488_515_87 + u * (-0.822_152_23 + u * 0.170_872_77)))))))))
-            .exp();
+                                + u * (-1.135_203_98 + u * (1.488_515_87 + u * (-0.822_152_23 + u * 0.170_872_77)))))))),
+    );
     let erfc = if x >= 0.0 { erfc } else { 2.0 - erfc };
     0.5 * erfc
 }
