@@ -168,7 +168,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         _ => noise::estimate(c, Some(top)).chosen(),
     };
     let levels: Vec<f64> =
-        if fitting && img.channels.len() == 3 { img.channels.iter().map(channel_level).collect() } else { vec![1.0] };
+        if fitting && img.channels.len() == 3 { img.channels.iter().map(channel_level).collect() } else { vec![1.0; img.channels.len()] };
     let mean_channel = levels.iter().sum::<f64>() / levels.len().max(1) as f64;
     let spread = levels.iter().copied().fold(0.0, f64::max) / levels.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12);
     let scaled = fitting && dependence == Dependence::None && levels.len() == 3 && spread > CHANNEL_SPREAD;

@@ -209,3 +209,18 @@ fn flat_noise_leaves_a_white_residual_and_averages_down_with_group_size() {
         assert!(lag1.abs() < bound, "group {n}: residual lag-1 correlation {lag1} beyond {bound}");
     }
 }
+
+#[test]
+fn clipped_colour_with_a_given_sigma_keeps_every_channel() {
+    // Invariant: the output has the input's channels, also when the clipped-noise correction runs
+    // without a fit (sigma given) on a colour image whose dark half clips at 0.
+    let mut r = patchgraph::synth::Rng::new(4);
+    let mut ch = || Plane::from_fn(64, 48, |x, _| (if x < 32 { 0.0 } else { 150.0 } + 20.0 * r.normal()).clamp(0.0, 255.0).round() as f32);
+    let img = Image { width: 64, height: 48, depth: BitDepth::Eight, channels: vec![ch(), ch(), ch()], alpha: None };
+    let out = pipeline::denoise(&img, &patch(20.0, 64), &NoProgress).unwrap();
+    assert_eq!(out.image.channels.len(), 3);
+    assert!(out.report.noise.clip_corrected);
+    // The dark half's mean comes back near its true 0 (the clipped noise alone averages 8).
+    let dark: f64 = out.image.channels.iter().map(|c| (0..48).flat_map(|y| (0..28).map(move |x| (x, y))).map(|(x, y)| f64::from(c.get(x, y))).sum::<f64>()).sum::<f64>() / (3.0 * 48.0 * 28.0);
+    assert!(dark < 4.0, "{dark}");
+}
