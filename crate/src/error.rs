@@ -9,7 +9,7 @@ pub type Result<T> = std::result::Result<T, Error>;
 pub enum Error {
     #[error("the file is empty")]
     EmptyInput,
-    #[error("the file is not an image in a supported format (PNG, JPEG, TIFF or BMP)")]
+    #[error("the file is not an image in a supported format (TIFF, FITS, PNG, JPEG or BMP)")]
     UnknownFormat,
     #[error("the image could not be decoded: {0}")]
     Decode(String),
@@ -19,7 +19,7 @@ pub enum Error {
     TooManyPixels { width: u32, height: u32, limit: u64 },
     #[error("decoding the image would need more than the memory limit of {limit_mib} MiB")]
     TooMuchMemory { limit_mib: u64 },
-    #[error("{0} images are not supported; convert to 8 or 16 bits per channel first")]
+    #[error("{0} images are not supported; save as grey or RGB TIFF (any of 8 to 64 bits) first")]
     UnsupportedPixelType(String),
     #[error("{0}")]
     UnsupportedOutput(String),

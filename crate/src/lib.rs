@@ -4,9 +4,9 @@
 //! returns bytes, numbers and typed errors. The CLI (`src/bin/patchgraph`) and the wasm bindings
 //! (`wasm.rs`, built only for wasm32) are thin faces over [`pipeline`].
 
-pub mod codec;
 pub mod color;
 pub mod error;
+pub mod file;
 pub mod graph;
 pub mod methods;
 pub mod metrics;
@@ -16,6 +16,7 @@ pub mod pipeline;
 pub mod planes;
 pub mod preview;
 pub mod progress;
+pub mod run_file;
 pub mod settings;
 pub mod synth;
 #[cfg(target_arch = "wasm32")]

@@ -2,7 +2,7 @@
 //! objects whose large fields are Uint8Arrays (the worker transfers their buffers). Every error
 //! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
 
-use crate::codec::{self, DecodeLimits, OutputFormat};
+use crate::file::{self, DecodeLimits, Format};
 use crate::methods::bands::{self, Band};
 use crate::methods::patch_graph::Stage;
 use crate::methods::MethodOutput;
@@ -77,7 +77,7 @@ impl Progress for JsProgress<'_> {
 
 fn decode(input: &[u8], max_megapixels: u32) -> Result<Image, JsError> {
     let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
-    codec::decode(input, &limits).map_err(js_err)
+    file::decode(input, &limits).and_then(|d| d.unit(0)).map_err(js_err)
 }
 
 /// Pixels the pixel-graph method takes in one worker: its graph and solver vectors for the whole
@@ -151,7 +151,7 @@ fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
 
 /// What the page gets from a finished run: PNG at full depth, views, report.
 fn run_result(img: &Image, run: &RunOutput) -> Result<JsValue, JsError> {
-    let png = codec::encode(&run.image, OutputFormat::Png).map_err(js_err)?;
+    let png = file::encode(&file::document_of(run.image.clone(), Format::Png), Format::Png, None).map_err(js_err)?;
     let obj = Object::new();
     let f = set_view_size(&obj, img)?;
     set(&obj, "png", &bytes(&png))?;

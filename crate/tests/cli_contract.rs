@@ -27,7 +27,7 @@ fn write_png(dir: &Path, name: &str, depth: u32, color: bool) -> PathBuf {
     let channels = if color { vec![plane(0), plane(1), plane(2)] } else { vec![plane(0)] };
     let img = Image { width: 64, height: 48, depth, channels, alpha: None };
     let path = dir.join(name);
-    std::fs::write(&path, patchgraph::codec::encode(&img, patchgraph::codec::OutputFormat::Png).unwrap()).unwrap();
+    std::fs::write(&path, patchgraph::file::encode(&patchgraph::file::document_of(img, patchgraph::file::Format::Png), patchgraph::file::Format::Png, None).unwrap()).unwrap();
     path
 }
 
@@ -114,7 +114,7 @@ fn denoise_keeps_depth_and_channels_and_prints_json() {
         assert_eq!(v["bit_depth"], depth);
         assert_eq!(v["channels"], if color { 3 } else { 1 });
         assert!(v["sigma"].as_f64().unwrap() >= 0.0);
-        let back = patchgraph::codec::decode(&std::fs::read(&out).unwrap(), &Default::default()).unwrap();
+        let back = patchgraph::file::decode(&std::fs::read(&out).unwrap(), &Default::default()).unwrap().unit(0).unwrap();
         assert_eq!(back.depth.bits(), depth);
         assert_eq!(back.channels.len(), if color { 3 } else { 1 });
     }

@@ -2,7 +2,7 @@
 //! with synthetic noise from a fixed seed, so the files regenerate byte for byte.
 //! Usage: make-samples [OUTDIR]   (default: sample-images)
 
-use patchgraph::codec::{encode, OutputFormat};
+use patchgraph::file::{document_of, encode, Format};
 use patchgraph::planes::{BitDepth, Image, Plane};
 use patchgraph::synth::Rng;
 use std::path::Path;
@@ -131,7 +131,7 @@ fn noisy(planes: &[Plane], sigma: f64, rng: &mut Rng) -> Vec<Plane> {
 fn save(dir: &Path, name: &str, planes: Vec<Plane>) -> Result<(), String> {
     let (width, height) = (planes[0].width, planes[0].height);
     let img = Image { width, height, depth: BitDepth::Eight, channels: planes, alpha: None };
-    let bytes = encode(&img, OutputFormat::Png).map_err(|e| e.to_string())?;
+    let bytes = encode(&document_of(img, Format::Png), Format::Png, None).map_err(|e| e.to_string())?;
     let path = dir.join(name);
     std::fs::write(&path, bytes).map_err(|e| format!("{}: {e}", path.display()))?;
     println!("wrote {}", path.display());

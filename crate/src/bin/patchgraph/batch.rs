@@ -6,13 +6,12 @@
 
 use crate::commands::{outln, read_settings, Failure};
 use crate::terminal::{write_atomically, TerminalProgress};
-use patchgraph::codec::{self, DecodeLimits, OutputFormat};
-use patchgraph::{pipeline, Error, Progress};
+use patchgraph::file::{self, DecodeLimits, Format, Provenance};
+use patchgraph::{run_file, Error, Progress};
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-const IMAGE_EXTENSIONS: [&str; 6] = ["png", "jpg", "jpeg", "tif", "tiff", "bmp"];
 
 /// Parses "K/N" with 1 <= K <= N.
 pub fn parse_shard(text: &str) -> Result<(usize, usize), Failure> {
@@ -26,7 +25,7 @@ pub fn parse_shard(text: &str) -> Result<(usize, usize), Failure> {
 }
 
 fn is_image(p: &Path) -> bool {
-    p.extension().and_then(|e| e.to_str()).is_some_and(|e| IMAGE_EXTENSIONS.contains(&e.to_ascii_lowercase().as_str()))
+    p.extension().and_then(|e| e.to_str()).and_then(Format::from_extension).is_some()
 }
 
 /// Files given directly, plus the image files of given folders (not recursive), sorted and unique.
@@ -84,35 +83,31 @@ fn check_target(out: &Path, input: &Path, written: &[PathBuf]) -> Result<(), Err
 
 /// A denoised file, encoded and not yet written.
 struct Computed {
-    format: OutputFormat,
+    format: Format,
     encoded: Vec<u8>,
     sigma: f64,
 }
 
 fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progress) -> Result<Computed, Error> {
     let bytes = std::fs::read(input).map_err(|e| Error::Decode(format!("cannot read the file ({e})")))?;
-    let img = codec::decode(&bytes, &DecodeLimits::default())?;
-    let run = pipeline::denoise(&img, settings, progress)?;
-    let format = input.extension().and_then(|e| e.to_str()).and_then(OutputFormat::from_extension).unwrap_or(OutputFormat::Png);
-    // The input's format, or PNG where that format cannot hold the result (16-bit JPEG, say).
-    let (format, encoded) = match codec::encode(&run.image, format) {
-        Ok(b) => (format, b),
-        Err(_) => (OutputFormat::Png, codec::encode(&run.image, OutputFormat::Png)?),
-    };
-    Ok(Computed { format, encoded, sigma: run.report.sigma_used })
+    let doc = file::decode(&bytes, &DecodeLimits::default())?;
+    // The input's format, or the first format that holds the whole file (a 16-bit JPEG, say).
+    let format = std::iter::once(doc.format)
+        .chain(file::FORMATS.iter().map(|f| f.format))
+        .find(|f| doc.check_writable(*f).is_ok())
+        .ok_or_else(|| Error::UnsupportedOutput("no output format here holds this file".into()))?;
+    let run = run_file::denoise_file(&doc, settings, progress)?;
+    let provenance = Provenance::new(settings.to_json());
+    let encoded = file::encode(&run.document, format, Some(&provenance))?;
+    let sigma = run.reports.first().map_or(0.0, |r| r.sigma_used * doc.map.scale);
+    Ok(Computed { format, encoded, sigma })
 }
 
 /// Writes a computed result beside its siblings in OUTDIR, never over an input or an earlier result.
 fn store(input: &Path, outdir: &Path, done: Computed, written: &[PathBuf]) -> Result<PathBuf, Error> {
     let Computed { format, encoded, .. } = done;
     let stem = input.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "image".into());
-    let ext = match format {
-        OutputFormat::Png => "png",
-        OutputFormat::Tiff => "tif",
-        OutputFormat::Bmp => "bmp",
-        OutputFormat::Jpeg => "jpg",
-    };
-    let out = outdir.join(format!("{stem}.{ext}"));
+    let out = outdir.join(format!("{stem}.{}", format.extension()));
     check_target(&out, input, written)?;
     write_atomically(&out, &encoded).map_err(|e| Error::Encode(format!("cannot write {} ({e})", out.display())))?;
     Ok(out)
@@ -140,7 +135,7 @@ pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: &Path, shard: Opt
     };
     let all = collect(inputs)?;
     if all.is_empty() {
-        return Err(Failure::user("no image files were given (PNG, JPEG, TIFF or BMP)".into()));
+        return Err(Failure::user(format!("no image files were given ({})", file::Format::all_extensions())));
     }
     let files: Vec<PathBuf> = all.into_iter().enumerate().filter(|(i, _)| i % n == k - 1).map(|(_, f)| f).collect();
     std::fs::create_dir_all(outdir).map_err(|e| Failure::user(format!("{}: cannot create the folder ({e})", outdir.display())))?;

@@ -2,10 +2,10 @@
 
 use crate::terminal::{write_atomically, TerminalProgress};
 use crate::{MethodArg, NoiseArg};
-use patchgraph::codec::{self, DecodeLimits, OutputFormat};
+use patchgraph::file::{self, DecodeLimits, Document, Format, Provenance};
 use patchgraph::planes::{BitDepth, Image};
 use patchgraph::settings::{AutoOr, Method, NoiseModel, Settings};
-use patchgraph::{metrics, pipeline, Error};
+use patchgraph::{metrics, pipeline, run_file, Error};
 use serde_json::json;
 use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
@@ -42,14 +42,21 @@ impl Failure {
 
 type CmdResult = Result<(), Failure>;
 
-fn read_image(path: &Path, limits: &DecodeLimits) -> Result<Image, Failure> {
+fn read_document(path: &Path, limits: &DecodeLimits) -> Result<Document, Failure> {
     let bytes = std::fs::read(path).map_err(|e| Failure::user(format!("{}: cannot read the file ({e})", path.display())))?;
-    codec::decode(&bytes, limits).map_err(|e| Failure::about(path, e))
+    file::decode(&bytes, limits).map_err(|e| Failure::about(path, e))
 }
 
-fn output_format(path: &Path) -> Result<OutputFormat, Failure> {
-    path.extension().and_then(|e| e.to_str()).and_then(OutputFormat::from_extension).ok_or_else(|| {
-        Failure::user(format!("{}: the output name must end in .png, .tif, .tiff, .bmp or .jpg", path.display()))
+/// The first image of a file, for the commands that look at one image (`noise`, `metrics`).
+fn read_image(path: &Path, limits: &DecodeLimits) -> Result<(Image, Document), Failure> {
+    let doc = read_document(path, limits)?;
+    let img = doc.unit(0).map_err(|e| Failure::about(path, e))?;
+    Ok((img, doc))
+}
+
+fn output_format(path: &Path) -> Result<Format, Failure> {
+    path.extension().and_then(|e| e.to_str()).and_then(Format::from_extension).ok_or_else(|| {
+        Failure::user(format!("{}: the output name must end in {}", path.display(), Format::all_extensions()))
     })
 }
 
@@ -72,9 +79,9 @@ fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
 
 #[derive(clap::Args)]
 pub struct DenoiseArgs {
-    /// The noisy image (PNG, JPEG, TIFF or BMP); it is never changed.
+    /// The noisy image (TIFF, FITS, PNG, JPEG or BMP; every page and channel); it is never changed.
     pub input: PathBuf,
-    /// Output file (.png, .tif, .tiff, .bmp, .jpg); written whole or not at all.
+    /// Output file (.tif, .fits, .png, .jpg, .bmp); written whole or not at all.
     #[arg(short, long)]
     pub output: PathBuf,
     /// patch-graph (default, best quality) or pixel-graph (fast).
@@ -98,10 +105,10 @@ pub struct DenoiseArgs {
     /// Settings JSON; flags given on the command line override it.
     #[arg(long)]
     pub settings: Option<PathBuf>,
-    /// Also write the pixel graph's cut map (white = all edges cut) as an 8-bit PNG.
+    /// Also write the pixel graph's cut map (white = all edges cut) as an 8-bit PNG (of the first page).
     #[arg(long)]
     pub cut_map: Option<PathBuf>,
-    /// Refuse images larger than this many megapixels.
+    /// Refuse pages larger than this many megapixels.
     #[arg(long, default_value_t = 64)]
     pub max_megapixels: u64,
     /// Print one JSON object on stdout instead of a text summary.
@@ -166,23 +173,37 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     }
     refuse_same_file(&a.input, &a.output)?;
     let limits = DecodeLimits { max_megapixels: a.max_megapixels, ..DecodeLimits::default() };
-    let img = read_image(&a.input, &limits)?;
+    let doc = read_document(&a.input, &limits)?;
+    // Before any work: a format that cannot hold the file is refused with one that can.
+    doc.check_writable(format).map_err(|e| Failure::about(&a.output, e))?;
     let progress = TerminalProgress::new(!a.json && std::io::stderr().is_terminal());
     let start = Instant::now();
-    let run = pipeline::denoise(&img, &settings, &progress).map_err(|e| Failure::about(&a.input, e));
+    let run = run_file::denoise_file(&doc, &settings, &progress).map_err(|e| Failure::about(&a.input, e));
     progress.finish();
     let run = run?;
     let seconds = start.elapsed().as_secs_f64();
-    let bytes = codec::encode(&run.image, format).map_err(|e| Failure::about(&a.output, e))?;
+    let provenance = Provenance::new(settings.to_json());
+    let bytes = file::encode(&run.document, format, Some(&provenance)).map_err(|e| Failure::about(&a.output, e))?;
     write_file(&a.output, &bytes)?;
     if let (Some(path), Some(map)) = (&a.cut_map, &run.cut_map) {
         let scaled = patchgraph::Plane { data: map.data.iter().map(|v| v * 255.0).collect(), ..map.clone() };
         let img = Image { width: map.width, height: map.height, depth: BitDepth::Eight, channels: vec![scaled], alpha: None };
-        let bytes = codec::encode(&img, OutputFormat::Png).map_err(|e| Failure::about(path, e))?;
+        let bytes = file::encode(&file::document_of(img, Format::Png), Format::Png, None).map_err(|e| Failure::about(path, e))?;
         write_file(path, &bytes)?;
     }
-    let r = &run.report;
+    let r = &run.reports[0];
+    // Sigma in the file's own units (float and wide-integer data work on a scaled copy).
+    let data_sigma = |r: &pipeline::RunReport| if r.stabilised { r.sigma_used } else { r.sigma_used * doc.map.scale };
+    let summary = doc.summary();
     if a.json {
+        let units: Vec<_> = run
+            .reports
+            .iter()
+            .enumerate()
+            .map(|(k, r)| json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(r),
+                                  "stabilised": r.stabilised, "residual": r.residual}))
+            .collect();
+        let first = doc.unit(0).map_err(|e| Failure::about(&a.input, e))?;
         let v = json!({
             "input": a.input.display().to_string(),
             "output": a.output.display().to_string(),
@@ -190,13 +211,16 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             "noise": r.noise_model,
             "noise_model": r.noise,
             "stabilised": r.stabilised,
-            "sigma": r.sigma_used,
+            "sigma": data_sigma(r),
+            "sigma_working": r.sigma_used,
             "sigma_estimated": r.sigma_was_estimated,
             "seconds": seconds,
-            "width": img.width,
-            "height": img.height,
-            "channels": img.stored_channels(),
-            "bit_depth": img.depth.bits(),
+            "width": summary.width,
+            "height": summary.height,
+            "channels": first.stored_channels(),
+            "bit_depth": first.depth.bits(),
+            "file": summary,
+            "units": units,
             "noise_estimates": r.noise_estimates,
             "residual": r.residual,
             "work_units": r.work_units,
@@ -207,29 +231,44 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
         let how = if r.sigma_was_estimated { "estimated" } else { "given" };
         let domain = if r.stabilised { " in the stabilised domain" } else { "" };
         outln!(
-            "{} -> {}: {} with sigma {:.2}{domain} ({how}), {:.2} s",
+            "{} -> {}: {} with sigma {:.4}{domain} ({how}), {:.2} s",
             a.input.display(),
             a.output.display(),
             r.method,
-            r.sigma_used,
+            data_sigma(r),
             seconds
         );
+        if doc.units() > 1 {
+            outln!("  {} pages x {} images each, {} samples: every one denoised", summary.pages, summary.units / summary.pages, summary.sample.describe());
+        }
         outln!("  noise: {} ({})", r.noise.model, r.noise.sentence);
         if let Some(f) = &r.noise.fallback {
             outln!("  note: {f}");
         }
-        for (c, s) in r.residual.iter().enumerate() {
-            outln!(
-                "  channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
-                s.std, s.std_over_sigma, s.lag1_autocorrelation, s.edge_correlation
-            );
+        for (k, r) in run.reports.iter().enumerate() {
+            let label = doc.unit_label(k);
+            if !label.is_empty() {
+                outln!("  {label}: sigma {:.4}", data_sigma(r));
+            }
+            for (c, s) in r.residual.iter().enumerate() {
+                outln!(
+                    "    channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
+                    s.std, s.std_over_sigma, s.lag1_autocorrelation, s.edge_correlation
+                );
+            }
+        }
+        if summary.blank_pixels > 0 {
+            outln!("  {} blank pixels left as they were", summary.blank_pixels);
         }
     }
     Ok(())
 }
 
 pub fn noise(input: &Path, json_out: bool) -> CmdResult {
-    let img = read_image(input, &DecodeLimits::default())?;
+    let (img, doc) = read_image(input, &DecodeLimits::default())?;
+    if doc.units() > 1 && !json_out {
+        outln!("{}: the first of {} images ({})", input.display(), doc.units(), doc.unit_label(0));
+    }
     let fit = pipeline::fit_noise(&img).map_err(|e| Failure::about(input, e))?;
     // The white estimates in the input's own grey levels, whatever domain the model works in.
     let est = &pipeline::estimate_noise(&img);
@@ -280,8 +319,8 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
 }
 
 pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
-    let a = read_image(clean, &DecodeLimits::default())?;
-    let b = read_image(test, &DecodeLimits::default())?;
+    let (a, _) = read_image(clean, &DecodeLimits::default())?;
+    let (b, _) = read_image(test, &DecodeLimits::default())?;
     let q = metrics::compare(&a, &b).map_err(|e| Failure::about(test, e))?;
     if json_out {
         outln!("{}", serde_json::to_string(&q).map_err(|e| Failure { code: 1, message: e.to_string() })?);

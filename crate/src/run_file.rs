@@ -1,0 +1,76 @@
+//! A whole file through runs: every page and independent channel denoised with the same
+//! settings, one after another, into a copy of the document (the input is never altered).
+
+use crate::error::Result;
+use crate::file::samples::ValueMap;
+use crate::file::Document;
+use crate::pipeline::{self, RunReport};
+use crate::planes::Plane;
+use crate::progress::Progress;
+use crate::settings::{AutoOr, Settings};
+
+pub struct FileRun {
+    pub document: Document,
+    /// One per unit ([`Document::unit`]).
+    pub reports: Vec<RunReport>,
+    /// The first unit's cut map (pixel-graph method).
+    pub cut_map: Option<Plane>,
+}
+
+/// Settings given in the file's own units (sigma, gain, offset, read noise) in working grey levels.
+pub fn in_working_units(s: &Settings, map: ValueMap) -> Settings {
+    if map == ValueMap::IDENTITY {
+        return s.clone();
+    }
+    let mut w = s.clone();
+    let scaled = |v: AutoOr, f: &dyn Fn(f64) -> f64| match v {
+        AutoOr::Value(x) => AutoOr::Value(f(x)),
+        auto => auto,
+    };
+    w.sigma = scaled(s.sigma, &|x| x / map.scale);
+    w.gain = scaled(s.gain, &|x| x / map.scale);
+    w.read_noise = scaled(s.read_noise, &|x| x / map.scale);
+    w.offset = scaled(s.offset, &|x| (x - map.offset) / map.scale);
+    w
+}
+
+/// Names the unit in each progress stage ("page 2 of 5: matching") and maps its share of the run.
+struct UnitProgress<'a> {
+    parent: &'a dyn Progress,
+    start: f32,
+    span: f32,
+    label: String,
+}
+
+impl Progress for UnitProgress<'_> {
+    fn report(&self, fraction: f32, stage: &str) {
+        let f = self.start + self.span * fraction.clamp(0.0, 1.0);
+        if self.label.is_empty() {
+            self.parent.report(f, stage);
+        } else {
+            self.parent.report(f, &format!("{}: {stage}", self.label));
+        }
+    }
+    fn is_cancelled(&self) -> bool {
+        self.parent.is_cancelled()
+    }
+}
+
+pub fn denoise_file(doc: &Document, settings: &Settings, progress: &dyn Progress) -> Result<FileRun> {
+    let working = in_working_units(settings, doc.map);
+    let n = doc.units();
+    let mut out = doc.clone();
+    let mut reports = Vec::with_capacity(n);
+    let mut cut_map = None;
+    for k in 0..n {
+        let sub = UnitProgress { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
+        let img = doc.unit(k)?;
+        let run = pipeline::denoise(&img, &working, &sub)?;
+        out.set_unit(k, run.image)?;
+        reports.push(run.report);
+        if k == 0 {
+            cut_map = run.cut_map;
+        }
+    }
+    Ok(FileRun { document: out, reports, cut_map })
+}
