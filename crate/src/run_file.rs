@@ -57,7 +57,6 @@ impl Progress for UnitProgress<'_> {
 }
 
 pub fn denoise_file(doc: &Document, settings: &Settings, progress: &dyn Progress) -> Result<FileRun> {
-    let working = in_working_units(settings, doc.map);
     let n = doc.units();
     let mut out = doc.clone();
     let mut reports = Vec::with_capacity(n);
@@ -65,7 +64,7 @@ pub fn denoise_file(doc: &Document, settings: &Settings, progress: &dyn Progress
     for k in 0..n {
         let sub = UnitProgress { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
         let img = doc.unit(k)?;
-        let run = pipeline::denoise(&img, &working, &sub)?;
+        let run = pipeline::denoise(&img, &in_working_units(settings, doc.unit_map(k)), &sub)?;
         out.set_unit(k, run.image)?;
         reports.push(run.report);
         if k == 0 {

@@ -1,7 +1,7 @@
 //! Decoding and encoding: every supported layout, sample type and page count round-trips
 //! exactly (an invariant of lossless formats); limits refuse huge headers.
 
-use patchgraph::file::samples::{Layout, SampleType, Samples, ValueMap, WorkingPage};
+use patchgraph::file::samples::{Layout, SampleType, Samples, WorkingPage};
 use patchgraph::file::{self, document_of, DecodeLimits, Document, Format, Metadata};
 use patchgraph::planes::{Alpha, BitDepth, Image, Plane};
 use patchgraph::Error;
@@ -90,18 +90,13 @@ fn stack(t: SampleType, layout: Layout, pages: usize) -> Document {
         })
         .collect();
     let rule = patchgraph::file::samples::BlankRule { marker: None };
-    let (lo, hi) = raw.iter().filter_map(|s| patchgraph::file::samples::valid_range(s, layout, rule)).fold(
-        (f64::INFINITY, f64::NEG_INFINITY),
-        |a, b| (a.0.min(b.0), a.1.max(b.1)),
-    );
-    let map = ValueMap::for_data(t, lo, hi);
     let pages: Vec<WorkingPage> =
-        raw.iter().map(|s| patchgraph::file::samples::to_working(s, w, h, layout, map, rule).unwrap()).collect();
-    Document { format: Format::Tiff, sample: t, layout, map, pages, meta: Metadata::default() }
+        raw.iter().map(|s| patchgraph::file::samples::to_working(s, w, h, layout, rule).unwrap()).collect();
+    Document { format: Format::Tiff, sample: t, layout, pages, meta: Metadata::default() }
 }
 
 fn stored(doc: &Document) -> Vec<Samples> {
-    doc.pages.iter().map(|p| patchgraph::file::samples::from_working(p, doc.layout, doc.sample, doc.map, f64::NAN)).collect()
+    doc.pages.iter().map(|p| patchgraph::file::samples::from_working(p, doc.layout, doc.sample, f64::NAN)).collect()
 }
 
 #[test]
@@ -134,4 +129,18 @@ fn a_format_that_cannot_hold_the_file_names_one_that_can() {
     assert!(e.contains("PNG cannot hold 32-bit float samples") && e.contains(".tif or .fits"), "{e}");
     let e = file::encode(&stack(SampleType::U16, Layout::Bands(2), 1), Format::Fits, None).unwrap_err().to_string();
     assert!(e.contains("2 independent channels") && e.contains(".tif"), "{e}");
+}
+
+#[test]
+fn a_unit_written_alone_reads_back_to_the_same_working_image() {
+    // What the page relies on: each slice or band is shipped to a worker as its own file.
+    for (t, layout) in [(SampleType::F32, Layout::Bands(3)), (SampleType::I32, Layout::Grey), (SampleType::U16, Layout::Rgb)] {
+        let doc = stack(t, layout, 2);
+        for k in 0..doc.units() {
+            let alone = file::encode(&doc.unit_document(k).unwrap(), Format::Tiff, None).unwrap();
+            let back = file::decode(&alone, &DecodeLimits::default()).unwrap();
+            assert_eq!(back.unit(0).unwrap(), doc.unit(k).unwrap(), "{t:?} {layout:?} unit {k}");
+            assert_eq!(back.unit_map(0), doc.unit_map(k));
+        }
+    }
 }

@@ -3,7 +3,7 @@
 //! unsigned conventions, BLANK and NaN pixels left as they were, every header card kept, HISTORY
 //! cards recording the run, and any extensions after the primary HDU copied byte for byte.
 
-use super::samples::{self, BlankRule, Layout, SampleType, Samples, ValueMap};
+use super::samples::{self, BlankRule, Layout, SampleType, Samples};
 use super::{DecodeLimits, Document, Format, Metadata, Provenance};
 use crate::error::{Error, Result};
 use fitsio_pure::block::padded_byte_len;
@@ -68,15 +68,11 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     };
     let sample = s.sample_type();
     let rule = BlankRule { marker };
-    let map = match samples::valid_range(&s, Layout::Grey, rule) {
-        Some((lo, hi)) => ValueMap::for_data(sample, lo, hi),
-        None => ValueMap::for_data(sample, 0.0, 0.0),
-    };
     let plane = w * h;
     let pages = (0..pages)
         .map(|p| {
             let page = Samples::from_values(sample, plane, |i| s.get(p * plane + i));
-            samples::to_working(&page, w, h, Layout::Grey, map, rule)
+            samples::to_working(&page, w, h, Layout::Grey, rule)
         })
         .collect::<Result<Vec<_>>>()?;
     let primary_end = (hdu.data_start + padded_byte_len(hdu.data_len)).min(bytes.len());
@@ -88,7 +84,7 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
         ..Metadata::default()
     };
     let _ = bitpix;
-    Ok(Document { format: Format::Fits, sample, layout: Layout::Grey, map, pages, meta })
+    Ok(Document { format: Format::Fits, sample, layout: Layout::Grey, pages, meta })
 }
 
 fn card(keyword: &str, value: Value, comment: Option<&str>) -> Result<Card> {
@@ -154,7 +150,7 @@ pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>
     let blank_value = if doc.sample.is_float() { f64::NAN } else { blank.unwrap_or(0.0) };
     let mut values: Vec<f64> = Vec::with_capacity(w * h * n);
     for page in &doc.pages {
-        let s = samples::from_working(page, Layout::Grey, doc.sample, doc.map, blank_value);
+        let s = samples::from_working(page, Layout::Grey, doc.sample, blank_value);
         values.extend((0..s.len()).map(|i| s.get(i)));
     }
     let data = match doc.sample {

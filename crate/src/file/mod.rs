@@ -228,7 +228,6 @@ pub struct Document {
     pub format: Format,
     pub sample: SampleType,
     pub layout: Layout,
-    pub map: ValueMap,
     pub pages: Vec<WorkingPage>,
     pub meta: Metadata,
 }
@@ -245,6 +244,7 @@ pub struct Summary {
     /// Images denoised one by one: pages times independent channels.
     pub units: usize,
     pub blank_pixels: usize,
+    /// The first image's map from working grey levels to stored values.
     pub map: ValueMap,
 }
 
@@ -311,8 +311,32 @@ impl Document {
             pages: self.pages.len(),
             units: self.units(),
             blank_pixels: self.pages.iter().flat_map(|p| p.blanks.iter()).map(Vec::len).sum(),
-            map: self.map,
+            map: self.unit_map(0),
         }
+    }
+    /// Unit `k`'s map from working grey levels to stored values (sigma in file units = working x scale).
+    pub fn unit_map(&self, k: usize) -> ValueMap {
+        let per = self.per_page();
+        self.pages.get(k / per).and_then(|p| p.maps.get(k % per)).copied().unwrap_or(ValueMap::IDENTITY)
+    }
+    /// Unit `k` alone, as a one-page document of the same sample type and metadata: written and
+    /// read back, it gives the same working image ([`Document::unit`]).
+    pub fn unit_document(&self, k: usize) -> Result<Document> {
+        let per = self.per_page();
+        let page = self.pages.get(k / per).ok_or_else(|| Error::BadSettings(format!("there is no image {}", k + 1)))?;
+        let page = match self.layout {
+            Layout::Bands(_) => {
+                let c = k % per;
+                WorkingPage {
+                    image: page.image.with_channels(vec![page.image.channels[c].clone()]),
+                    blanks: vec![page.blanks[c].clone()],
+                    maps: vec![page.maps[c]],
+                }
+            }
+            _ => page.clone(),
+        };
+        let layout = if matches!(self.layout, Layout::Bands(_)) { Layout::Grey } else { self.layout };
+        Ok(Document { format: self.format, sample: self.sample, layout, pages: vec![page], meta: self.meta.clone() })
     }
     /// Says, before any work, why `format` cannot hold this document as it is, naming one that can.
     pub fn check_writable(&self, format: Format) -> Result<()> {
@@ -393,12 +417,6 @@ pub fn document_of(img: Image, format: Format) -> Document {
         (_, true) => Layout::Rgba,
     };
     let blanks = vec![Vec::new(); img.channels.len()];
-    Document {
-        format,
-        sample,
-        layout,
-        map: ValueMap::IDENTITY,
-        pages: vec![WorkingPage { image: img, blanks }],
-        meta: Metadata::default(),
-    }
+    let maps = vec![ValueMap::IDENTITY; img.channels.len()];
+    Document { format, sample, layout, pages: vec![WorkingPage { image: img, blanks, maps }], meta: Metadata::default() }
 }

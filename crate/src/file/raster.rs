@@ -2,7 +2,7 @@
 //! `image` crate, with PNG's pHYs, iCCP and text chunks read and written through `png`, and
 //! JPEG's ICC profile and EXIF (orientation included) copied.
 
-use super::samples::{Layout, SampleType, ValueMap, WorkingPage};
+use super::samples::{Layout, SampleType, WorkingPage};
 use super::{DecodeLimits, Document, Format, Metadata, Provenance, Resolution, ResolutionUnit};
 use crate::error::{Error, Result};
 use crate::planes::{Alpha, BitDepth, Image, Plane};
@@ -103,7 +103,7 @@ fn from_dynamic(img: DynamicImage) -> Result<Image> {
 
 /// Interleaved 8-bit samples of a page (PNG at 16 bits uses [`be16`]).
 fn samples8(doc: &Document, page: &WorkingPage) -> Vec<u8> {
-    match super::samples::from_working(page, doc.layout, SampleType::U8, ValueMap::IDENTITY, 0.0) {
+    match super::samples::from_working(page, doc.layout, SampleType::U8, 0.0) {
         super::samples::Samples::U8(v) => v,
         _ => Vec::new(),
     }
@@ -111,7 +111,7 @@ fn samples8(doc: &Document, page: &WorkingPage) -> Vec<u8> {
 
 /// Interleaved 16-bit samples, big-endian as PNG stores them.
 fn be16(doc: &Document, page: &WorkingPage) -> Vec<u8> {
-    match super::samples::from_working(page, doc.layout, SampleType::U16, ValueMap::IDENTITY, 0.0) {
+    match super::samples::from_working(page, doc.layout, SampleType::U16, 0.0) {
         super::samples::Samples::U16(v) => v.iter().flat_map(|x| x.to_be_bytes()).collect(),
         _ => Vec::new(),
     }

@@ -212,27 +212,31 @@ pub fn valid_range(s: &Samples, layout: Layout, blank: BlankRule) -> Option<(f64
     (lo <= hi).then_some((lo, hi))
 }
 
-/// A decoded page: the working image and, per colour channel, the indices of blank pixels.
+/// A decoded page: the working image and, per colour channel, the indices of blank pixels and
+/// the value map. Maps belong to units (a page, or one band of it), so that a unit written alone
+/// reads back to the same working values.
 #[derive(Clone, Debug)]
 pub struct WorkingPage {
     pub image: Image,
     pub blanks: Vec<Vec<u32>>,
+    pub maps: Vec<ValueMap>,
 }
 
 /// Stored samples to a working page. Blank pixels are filled with valid samples of the same
 /// channel drawn at random: their neighbourhoods then look busy, never calm, so the noise fit's
 /// calm blocks never come from them (a constant fill would look noise-free and pull the
 /// estimate down). They are written back as they were.
-pub fn to_working(s: &Samples, w: usize, h: usize, layout: Layout, map: ValueMap, blank: BlankRule) -> Result<WorkingPage> {
+pub fn to_working(s: &Samples, w: usize, h: usize, layout: Layout, blank: BlankRule) -> Result<WorkingPage> {
     let n = layout.samples_per_pixel();
     if s.len() != w * h * n {
         return Err(Error::Decode(format!("a page holds {} samples where {w} x {h} x {n} were expected", s.len())));
     }
     let sample = s.sample_type();
     let colour = layout.colour_channels();
+    let maps = unit_maps(s, layout, blank);
     let mut channels = Vec::with_capacity(colour);
     let mut blanks = Vec::with_capacity(colour);
-    for c in 0..colour {
+    for (c, &map) in maps.iter().enumerate() {
         let mut data = Vec::with_capacity(w * h);
         let mut holes = Vec::new();
         for i in 0..w * h {
@@ -262,7 +266,32 @@ pub fn to_working(s: &Samples, w: usize, h: usize, layout: Layout, map: ValueMap
     } else {
         None
     };
-    Ok(WorkingPage { image: Image { width: w, height: h, depth: sample.working_depth(), channels, alpha }, blanks })
+    Ok(WorkingPage { image: Image { width: w, height: h, depth: sample.working_depth(), channels, alpha }, blanks, maps })
+}
+
+/// Per colour channel, the map of its unit: one over all colour channels, or one per band.
+fn unit_maps(s: &Samples, layout: Layout, blank: BlankRule) -> Vec<ValueMap> {
+    let t = s.sample_type();
+    let of = |r: Option<(f64, f64)>| {
+        let (lo, hi) = r.unwrap_or((0.0, 0.0));
+        ValueMap::for_data(t, lo, hi)
+    };
+    match layout {
+        Layout::Bands(n) => (0..n).map(|c| of(channel_range(s, n, c, blank))).collect(),
+        _ => vec![of(valid_range(s, layout, blank)); layout.colour_channels()],
+    }
+}
+
+fn channel_range(s: &Samples, n: usize, c: usize, blank: BlankRule) -> Option<(f64, f64)> {
+    let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
+    for i in (c..s.len()).step_by(n) {
+        let v = s.get(i);
+        if !blank.is_blank(v) {
+            lo = lo.min(v);
+            hi = hi.max(v);
+        }
+    }
+    (lo <= hi).then_some((lo, hi))
 }
 
 fn fill_holes(data: &mut [f32], holes: &[u32], seed: u64) {
@@ -287,14 +316,14 @@ fn fill_holes(data: &mut [f32], holes: &[u32], seed: u64) {
 }
 
 /// A working page back to stored samples of type `sample`; blank pixels get `blank_value`.
-pub fn from_working(page: &WorkingPage, layout: Layout, sample: SampleType, map: ValueMap, blank_value: f64) -> Samples {
+pub fn from_working(page: &WorkingPage, layout: Layout, sample: SampleType, blank_value: f64) -> Samples {
     let img = &page.image;
     let n = layout.samples_per_pixel();
     let colour = layout.colour_channels();
     let px = img.width * img.height;
     let mut values = vec![0.0f64; px * n];
     for c in 0..colour {
-        let plane = &img.channels[c].data;
+        let (plane, map) = (&img.channels[c].data, page.maps[c]);
         for i in 0..px {
             values[i * n + c] = map.to_stored(plane[i]);
         }
@@ -315,11 +344,9 @@ mod tests {
     use super::*;
 
     fn round_trip(s: Samples, layout: Layout, blank: BlankRule, blank_value: f64) -> Samples {
-        let (lo, hi) = valid_range(&s, layout, blank).unwrap();
-        let map = ValueMap::for_data(s.sample_type(), lo, hi);
         let n = layout.samples_per_pixel();
-        let page = to_working(&s, s.len() / n / 2, 2, layout, map, blank).unwrap();
-        from_working(&page, layout, s.sample_type(), map, blank_value)
+        let page = to_working(&s, s.len() / n / 2, 2, layout, blank).unwrap();
+        from_working(&page, layout, s.sample_type(), blank_value)
     }
 
     #[test]
@@ -375,7 +402,7 @@ mod tests {
         let s = Samples::U16(vec![1, 2, 3, 65535, 5, 6, 7, 0, 9, 10, 11, 42, 13, 14, 15, 1]);
         assert_eq!(round_trip(s.clone(), Layout::Rgba, BlankRule { marker: None }, 0.0), s);
         let two = Samples::U16(vec![10, 20, 11, 21, 12, 22, 13, 23]);
-        let page = to_working(&two, 2, 2, Layout::Bands(2), ValueMap::IDENTITY, BlankRule { marker: None }).unwrap();
+        let page = to_working(&two, 2, 2, Layout::Bands(2), BlankRule { marker: None }).unwrap();
         assert_eq!(page.image.channels[1].data, vec![20.0, 21.0, 22.0, 23.0]);
     }
 }

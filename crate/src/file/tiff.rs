@@ -3,7 +3,7 @@
 //! description and ICC profile kept. Colour models the crate leaves undecoded (palette, YCbCr,
 //! CMYK, bilevel) fall back to the general decoder for single-page files.
 
-use super::samples::{self, BlankRule, Layout, SampleType, Samples, ValueMap};
+use super::samples::{self, BlankRule, Layout, SampleType, Samples};
 use super::{Compression, DecodeLimits, Document, Format, Metadata, Provenance, Resolution, ResolutionUnit};
 use crate::error::{Error, Result};
 use std::io::{Cursor, Seek, Write};
@@ -215,14 +215,11 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     }
     let head = first.ok_or(Error::ZeroSize)?;
     let rule = BlankRule { marker: None };
-    let range = raw.iter().filter_map(|s| samples::valid_range(s, head.layout, rule)).reduce(|a, b| (a.0.min(b.0), a.1.max(b.1)));
-    let (lo, hi) = range.unwrap_or((0.0, 0.0));
-    let map = ValueMap::for_data(head.sample, lo, hi);
     let pages = raw
         .into_iter()
-        .map(|s| samples::to_working(&s, head.width, head.height, head.layout, map, rule))
+        .map(|s| samples::to_working(&s, head.width, head.height, head.layout, rule))
         .collect::<Result<Vec<_>>>()?;
-    Ok(Document { format: Format::Tiff, sample: head.sample, layout: head.layout, map, pages, meta })
+    Ok(Document { format: Format::Tiff, sample: head.sample, layout: head.layout, pages, meta })
 }
 
 /// The per-sample facts of a stored type.
@@ -354,7 +351,7 @@ where
 fn write_all<W: Write + Seek, K: TiffKind>(mut enc: TiffEncoder<W, K>, doc: &Document, provenance: Option<&Provenance>) -> Result<()> {
     for page in &doc.pages {
         let blank = if doc.sample.is_float() { f64::NAN } else { 0.0 };
-        let s = samples::from_working(page, doc.layout, doc.sample, doc.map, blank);
+        let s = samples::from_working(page, doc.layout, doc.sample, blank);
         match &s {
             Samples::U8(v) => write_typed(&mut enc, doc, v, provenance)?,
             Samples::U16(v) => write_typed(&mut enc, doc, v, provenance)?,

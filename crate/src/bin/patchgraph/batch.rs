@@ -99,7 +99,7 @@ fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progres
     let run = run_file::denoise_file(&doc, settings, progress)?;
     let provenance = Provenance::new(settings.to_json());
     let encoded = file::encode(&run.document, format, Some(&provenance))?;
-    let sigma = run.reports.first().map_or(0.0, |r| r.sigma_used * doc.map.scale);
+    let sigma = run.reports.first().map_or(0.0, |r| r.sigma_used * doc.unit_map(0).scale);
     Ok(Computed { format, encoded, sigma })
 }
 

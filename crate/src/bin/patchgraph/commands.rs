@@ -193,14 +193,14 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     }
     let r = &run.reports[0];
     // Sigma in the file's own units (float and wide-integer data work on a scaled copy).
-    let data_sigma = |r: &pipeline::RunReport| if r.stabilised { r.sigma_used } else { r.sigma_used * doc.map.scale };
+    let data_sigma = |k: usize, r: &pipeline::RunReport| if r.stabilised { r.sigma_used } else { r.sigma_used * doc.unit_map(k).scale };
     let summary = doc.summary();
     if a.json {
         let units: Vec<_> = run
             .reports
             .iter()
             .enumerate()
-            .map(|(k, r)| json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(r),
+            .map(|(k, r)| json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(k, r),
                                   "stabilised": r.stabilised, "residual": r.residual}))
             .collect();
         let first = doc.unit(0).map_err(|e| Failure::about(&a.input, e))?;
@@ -211,7 +211,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             "noise": r.noise_model,
             "noise_model": r.noise,
             "stabilised": r.stabilised,
-            "sigma": data_sigma(r),
+            "sigma": data_sigma(0, r),
             "sigma_working": r.sigma_used,
             "sigma_estimated": r.sigma_was_estimated,
             "seconds": seconds,
@@ -235,7 +235,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             a.input.display(),
             a.output.display(),
             r.method,
-            data_sigma(r),
+            data_sigma(0, r),
             seconds
         );
         if doc.units() > 1 {
@@ -248,7 +248,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
         for (k, r) in run.reports.iter().enumerate() {
             let label = doc.unit_label(k);
             if !label.is_empty() {
-                outln!("  {label}: sigma {:.4}", data_sigma(r));
+                outln!("  {label}: sigma {:.4}", data_sigma(k, r));
             }
             for (c, s) in r.residual.iter().enumerate() {
                 outln!(
