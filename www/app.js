@@ -11,7 +11,9 @@ const names = ['A', 'B', 'C', 'D'];
 const $ = (id) => document.getElementById(id);
 
 const app = {
-  source: null, // {name, bytes, info}: the bytes are never changed; workers get copies
+  // {name, file, fileInfo, unit, bytes, info}: `file` is the whole file as opened, never changed;
+  // `bytes` and `info` are the image shown (for a stack, its own one-image file); workers get copies.
+  source: null,
   reference: null,
   panes: [],
   defaults: null,
@@ -61,10 +63,51 @@ const app = {
   },
 };
 
-function describe(info) {
+function describe(info, fileInfo = info) {
   const kind = { 1: 'grey', 2: 'grey + alpha', 3: 'RGB', 4: 'RGBA' }[info.channels];
   const shrunk = info.viewFactor > 1 ? `; shown at 1/${info.viewFactor} size, saved results are full size` : '';
-  return `${info.width} × ${info.height}, ${kind}, ${info.bitDepth}-bit, estimated sigma ${info.sigma.toFixed(2)}${shrunk}`;
+  const many = fileInfo.units > 1 ? `, ${fileInfo.units} images (pages or channels)` : '';
+  const blank = fileInfo.blankPixels ? `, ${fileInfo.blankPixels} blank pixels (left as they are)` : '';
+  // Sigma in the file's own units: float data are worked on as a scaled copy.
+  const sigma = info.sigma * info.scale;
+  const digits = sigma >= 1 ? 2 : Math.min(6, 2 - Math.floor(Math.log10(sigma || 1)));
+  return `${info.width} × ${info.height}, ${kind}, ${info.sample} ${fileInfo.format}${many}${blank}, ` +
+    `estimated sigma ${sigma.toFixed(digits)}${shrunk}`;
+}
+
+// The slice control: which image of a stack (or band of a multi-channel file) every pane shows.
+function setupSlices(fileInfo) {
+  const many = fileInfo.units > 1;
+  $('slice-bar').hidden = !many;
+  $('slice').max = String(fileInfo.units);
+  $('slice').value = '1';
+  $('slice-label').textContent = many ? fileInfo.unitLabels[0] : '';
+}
+
+async function showUnit(k) {
+  const src = app.source;
+  if (!src || k === src.unit) return;
+  $('slice-label').textContent = `${src.fileInfo.unitLabels[k]} (opening…)`;
+  try {
+    const { file: bytes } = await call('unitFile', { bytes: src.file.slice(), unit: k });
+    const info = await call('open', { bytes: bytes.slice() });
+    if (app.source !== src) return;
+    Object.assign(src, { bytes, info, unit: k });
+    $('slice-label').textContent = src.fileInfo.unitLabels[k];
+    $('source-info').textContent = `${src.name}: ${describe(info, src.fileInfo)}`;
+    for (const p of app.panes) p.showUnit(k);
+    refreshNoise(src, bytes);
+  } catch (e) {
+    $('source-error').textContent = `${src.name}, ${src.fileInfo.unitLabels[k]}: ${e.message}`;
+  }
+}
+
+// The noise fit follows in the background; the image is usable before it arrives.
+function refreshNoise(src, bytes) {
+  hideNoise($('noise-fit'));
+  call('noise', { bytes: bytes.slice() })
+    .then((n) => { if (app.source === src && src.bytes === bytes) showNoise($('noise-fit'), n); })
+    .catch((e) => { hideNoise($('noise-fit')); console.warn(`noise fit: ${e.message}`); });
 }
 
 async function openSource(name, bytes, fromSample = false) {
@@ -72,21 +115,23 @@ async function openSource(name, bytes, fromSample = false) {
   $('source-error').textContent = '';
   $('source-info').textContent = `Opening ${name}…`;
   try {
-    const info = await call('open', { bytes: bytes.slice() });
+    const fileInfo = await call('open', { bytes: bytes.slice() });
+    let [shown, info] = [bytes, fileInfo];
+    if (fileInfo.units > 1) {
+      shown = (await call('unitFile', { bytes: bytes.slice(), unit: 0 })).file;
+      info = await call('open', { bytes: shown.slice() });
+    }
     const hadOne = Boolean(app.source);
-    app.source = { name, bytes, info };
-    $('source-info').textContent = `${name}: ${describe(info)}`;
+    app.source = { name, file: bytes, fileInfo, unit: 0, bytes: shown, info };
+    $('source-info').textContent = `${name}: ${describe(info, fileInfo)}`;
+    setupSlices(fileInfo);
     setImageSize(info.width, info.height);
-    for (const p of app.panes) { p.result = null; p.saved = true; p.q('.save-png').disabled = true; p.showMetrics(); p.clearOverlay(); p.paint(); }
+    for (const p of app.panes) { p.clearResults(); p.showMetrics(); p.clearOverlay(); p.paint(); }
     fit(app.panes[0].viewport);
-    // The noise fit follows in the background; the image is usable before it arrives.
-    hideNoise($('noise-fit'));
-    call('noise', { bytes: bytes.slice() })
-      .then((n) => { if (app.source && app.source.bytes === bytes) showNoise($('noise-fit'), n); })
-      .catch((e) => { hideNoise($('noise-fit')); console.warn(`noise fit: ${e.message}`); });
+    refreshNoise(app.source, shown);
     if (hadOne && app.reference) dropReference('Reference set aside: the image changed. Load its clean reference to see PSNR and SSIM.');
   } catch (e) {
-    $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info)}` : '';
+    $('source-info').textContent = app.source ? `${app.source.name}: ${describe(app.source.info, app.source.fileInfo)}` : '';
     $('source-error').textContent = `${name}: ${e.message}`;
   }
 }
@@ -137,6 +182,7 @@ function wireInput() {
     if (f) await openReference(f.name, await fileBytes(f));
   });
   $('sample').addEventListener('change', (e) => { if (e.target.value) loadSample(e.target.value); });
+  $('slice').addEventListener('change', (e) => showUnit(Number(e.target.value) - 1));
   $('drop').addEventListener('keydown', (e) => { if (e.key === 'Enter' || e.key === ' ') { e.preventDefault(); $('file').click(); } });
   document.addEventListener('dragover', (e) => { e.preventDefault(); document.body.classList.add('dragging'); });
   document.addEventListener('dragleave', (e) => { if (!e.relatedTarget) document.body.classList.remove('dragging'); });
@@ -164,7 +210,7 @@ function queueBatch(files) {
 function wireBatch() {
   for (const id of ['batch-files', 'batch-folder']) {
     $(id).addEventListener('change', (e) => {
-      queueBatch([...e.target.files].filter((f) => /\.(png|jpe?g|tiff?|bmp)$/i.test(f.name) || id === 'batch-files'));
+      queueBatch([...e.target.files].filter((f) => /\.(png|jpe?g|tiff?|bmp|fits?|fts)$/i.test(f.name) || id === 'batch-files'));
       e.target.value = '';
     });
   }

@@ -1,7 +1,7 @@
 // Many files with one setting: a queue with per-file progress and an overall bar, stop, per-file
 // errors that do not stop the others, and the results plus a report CSV in one ZIP.
-import { task, Stopped } from './tasks.js';
-import { splitRun } from './stitch.js';
+import { call, Stopped } from './tasks.js';
+import { runWholeFile } from './wholefile.js';
 import { makeZip } from './zip.js';
 
 const $ = (id) => document.getElementById(id);
@@ -41,15 +41,18 @@ export async function runBatch(files, pane, download) {
     try {
       const bytes = new Uint8Array(await f.arrayBuffer());
       const onProgress = (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; };
-      // As in a pane: patch-graph files are split across all workers, pixel-graph ones take one.
-      current = pane.settings.method === 'patch-graph' ? splitRun(bytes, settings, onProgress) : task('denoise', { bytes, settings }, onProgress);
+      const started = performance.now();
+      const { units } = await call('open', { bytes: bytes.slice() });
+      // As in a pane: every page and channel, the file saved whole in its own format.
+      current = runWholeFile(bytes, units, settings, pane.settings.method, onProgress);
       const r = await current.promise;
-      const report_ = JSON.parse(r.report);
-      let name = `${f.name.replace(/\.[^.]+$/, '')}-denoised.png`;
-      for (let k = 2; used.has(name); k += 1) name = `${f.name.replace(/\.[^.]+$/, '')}-denoised-${k}.png`;
+      const stem = f.name.replace(/\.[^.]+$/, '');
+      let name = `${stem}-denoised.${r.extension}`;
+      for (let k = 2; used.has(name); k += 1) name = `${stem}-denoised-${k}.${r.extension}`;
       used.add(name);
-      entries.push({ name, bytes: r.png });
-      report.push([f.name, name, report_.sigma_used.toFixed(4), r.seconds.toFixed(3), '']);
+      entries.push({ name, bytes: r.file });
+      const seconds = (performance.now() - started) / 1000;
+      report.push([f.name, name, r.reports[0].sigma_used.toFixed(4), seconds.toFixed(3), '']);
       row.bar.value = 1;
       row.state.textContent = 'done';
     } catch (e) {

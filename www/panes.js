@@ -1,6 +1,6 @@
 // One pane: a setting of its own, its run (progress, stop), its views and its metrics.
-import { task, call, Stopped } from './tasks.js';
-import { splitRun } from './stitch.js';
+import { call, Stopped } from './tasks.js';
+import { runImage, runWholeFile } from './wholefile.js';
 import { view, applyTo, attach } from './view.js';
 
 const fields = {
@@ -27,7 +27,8 @@ export class Pane {
     this.app = app;
     this.name = name;
     this.settings = settings;
-    this.result = null;
+    this.result = null; // the result for the image shown
+    this.results = new Map(); // image number -> result, for files of several images
     this.saved = true;
     this.run = null;
     this.viewName = 'result';
@@ -50,7 +51,7 @@ export class Pane {
       if (e.target.type === 'radio') { this.viewName = e.target.value; this.paint(); }
       if (e.target.classList.contains('show-group') && !e.target.checked) this.clearOverlay();
     });
-    q('.save-png').addEventListener('click', () => this.savePng());
+    q('.save-png').addEventListener('click', () => this.save());
     q('.save-json').addEventListener('click', () => this.app.download(`patchgraph-setting-${name}.json`,
       new Blob([JSON.stringify(this.settings, null, 2)], { type: 'application/json' })));
     q('.load-json').addEventListener('change', (e) => this.loadSettings(e.target));
@@ -112,16 +113,16 @@ export class Pane {
     stage.textContent = 'starting';
     const show = (f, s) => { bar.value = f; stage.textContent = s; };
     const settings = JSON.stringify(this.settings);
-    // The patch-graph method splits into bands shared by all workers; the pixel-graph method's
-    // solvers need the whole graph, so it runs in one worker.
-    this.run = this.settings.method === 'patch-graph'
-      ? splitRun(src.bytes, settings, show)
-      : task('denoise', { bytes: src.bytes.slice(), settings }, show);
+    const { file, unit } = src;
+    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
       r.settings = structuredClone(this.settings);
       r.quality = null;
+      this.results.set(unit, r);
+      // The slice control may have moved on while this ran: the result waits for its image.
+      if (this.app.source !== src || src.file !== file || src.unit !== unit) return;
       this.result = r;
       this.saved = false;
       this.q('.save-png').disabled = false;
@@ -153,7 +154,7 @@ export class Pane {
     const ref = this.app.reference;
     if (this.result && ref && !this.result.quality) {
       try {
-        this.result.quality = await call('compare', { clean: ref.bytes.slice(), test: this.result.png.slice() });
+        this.result.quality = await call('compare', { clean: ref.bytes.slice(), test: this.result.file.slice() });
       } catch (e) {
         this.error(`reference: ${e.message}`);
       }
@@ -246,10 +247,54 @@ export class Pane {
     }
   }
 
-  savePng() {
-    if (!this.result) return;
-    const base = (this.app.source.name || 'image').replace(/\.[^.]+$/, '');
-    this.app.download(`${base}-denoised-${this.name}.png`, new Blob([this.result.png], { type: 'image/png' }));
+  // The slice control moved: show this setting's result for image k, if it has one.
+  showUnit(k) {
+    const r = this.results.get(k);
+    this.result = r && r.rgba ? r : null;
+    this.showMetrics();
+    this.clearOverlay();
+    this.paint();
+  }
+
+  // Forgets results (a new file was opened).
+  clearResults() {
+    this.results = new Map();
+    this.result = null;
     this.saved = true;
+    this.q('.save-png').disabled = true;
+  }
+
+  // Saves the whole file in its own format: every image of it, those not yet run with these
+  // settings run first (with progress, stoppable).
+  async save() {
+    const src = this.app.source;
+    if (!src || this.run || !this.results.size) return;
+    const base = (src.name || 'image').replace(/\.[^.]+$/, '');
+    const units = src.fileInfo.units;
+    const settings = JSON.stringify(this.settings);
+    const same = (r) => r && JSON.stringify(r.settings) === settings;
+    const stage = this.q('.stage');
+    const bar = this.q('.bar');
+    this.error('');
+    this.busy(true);
+    this.run = runWholeFile(src.file, units, settings, this.settings.method, (f, s) => { bar.value = f; stage.textContent = s; },
+      (k) => (same(this.results.get(k)) ? this.results.get(k) : (units === 1 && this.result ? this.result : null)),
+      (k, r) => {
+        r.settings = structuredClone(this.settings);
+        // Images not on screen keep only what saving needs.
+        this.results.set(k, k === src.unit ? r : { file: r.file, settings: r.settings, report: r.report });
+      });
+    try {
+      const out = await this.run.promise;
+      this.app.download(`${base}-denoised-${this.name}.${out.extension}`, new Blob([out.file]));
+      this.saved = true;
+      stage.textContent = units > 1 ? `saved all ${units} images` : 'saved';
+    } catch (e) {
+      stage.textContent = e instanceof Stopped ? 'stopped; nothing was saved' : 'saving failed';
+      if (!(e instanceof Stopped)) this.error(e.message);
+    } finally {
+      this.run = null;
+      this.busy(false);
+    }
   }
 }

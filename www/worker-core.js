@@ -11,7 +11,7 @@ export const simdSupported = () => WebAssembly.validate(SIMD_PROBE);
 // `build` names the wasm build in use ('simd128' or 'baseline'); every reply carries it.
 export function installWorker(pg, ready, build) {
   const MAX_MEGAPIXELS = 64;
-  const keys = ['rgba', 'png', 'residual', 'cuts', 'planes', 'num', 'den'];
+  const keys = ['rgba', 'file', 'residual', 'cuts', 'planes', 'num', 'den'];
   // Large arrays move to the page instead of being copied; `planes` is an array of them.
   const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k])
     .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]))
@@ -34,6 +34,8 @@ export function installWorker(pg, ready, build) {
           break;
         case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, MAX_MEGAPIXELS); break;
         case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, MAX_MEGAPIXELS)); break;
+        case 'unitFile': r = { file: pg.unitFile(m.bytes, m.unit, MAX_MEGAPIXELS) }; break;
+        case 'assemble': r = pg.assembleFile(m.bytes, m.results, m.settings, MAX_MEGAPIXELS); break;
         case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;
         case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, MAX_MEGAPIXELS)); break;
         default: throw new Error(`unknown request ${m.kind}`);

@@ -2,7 +2,7 @@
 //! objects whose large fields are Uint8Arrays (the worker transfers their buffers). Every error
 //! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
 
-use crate::file::{self, DecodeLimits, Format};
+use crate::file::{self, DecodeLimits, Document, Format, Provenance};
 use crate::methods::bands::{self, Band};
 use crate::methods::patch_graph::Stage;
 use crate::methods::MethodOutput;
@@ -75,9 +75,25 @@ impl Progress for JsProgress<'_> {
     }
 }
 
-fn decode(input: &[u8], max_megapixels: u32) -> Result<Image, JsError> {
+fn decode_file(input: &[u8], max_megapixels: u32) -> Result<Document, JsError> {
     let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
-    file::decode(input, &limits).and_then(|d| d.unit(0)).map_err(js_err)
+    file::decode(input, &limits).map_err(js_err)
+}
+
+/// The first image of a file; the page sends a stack's images one at a time ([`unit_file`]).
+fn decode(input: &[u8], max_megapixels: u32) -> Result<Image, JsError> {
+    decode_file(input, max_megapixels)?.unit(0).map_err(js_err)
+}
+
+/// A run's result as a file: the input's format (PNG for JPEG and BMP), its metadata, and the
+/// program and settings recorded.
+fn result_file(input: &[u8], max_megapixels: u32, result: &Image, settings: &Settings) -> Result<(Vec<u8>, Format), JsError> {
+    let doc = decode_file(input, max_megapixels)?;
+    let mut out = doc.unit_document(0).map_err(js_err)?;
+    out.set_unit(0, result.clone()).map_err(js_err)?;
+    let format = doc.result_format();
+    let provenance = Provenance::of(&settings);
+    Ok((file::encode(&out, format, Some(&provenance)).map_err(js_err)?, format))
 }
 
 /// Pixels the pixel-graph method takes in one worker: its graph and solver vectors for the whole
@@ -105,9 +121,20 @@ pub fn check_settings(json: &str) -> Result<String, JsError> {
 /// Size, depth, channels, noise estimates and an RGBA preview of an image file.
 #[wasm_bindgen]
 pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
-    let img = decode(input, max_megapixels)?;
+    let doc = decode_file(input, max_megapixels)?;
+    let img = doc.unit(0).map_err(js_err)?;
     let est = pipeline::estimate_noise(&img);
     let obj = Object::new();
+    let summary = doc.summary();
+    set(&obj, "units", &num(summary.units))?;
+    let labels: Array = (0..summary.units).map(|k| JsValue::from_str(&doc.unit_label(k))).collect();
+    set(&obj, "unitLabels", &labels.into())?;
+    set(&obj, "format", &JsValue::from_str(doc.format.info().name))?;
+    set(&obj, "sample", &JsValue::from_str(doc.sample.describe()))?;
+    set(&obj, "resultExtension", &JsValue::from_str(doc.result_format().extension()))?;
+    set(&obj, "blankPixels", &num(summary.blank_pixels))?;
+    // Sigma in the file's own units (float data work on a scaled copy).
+    set(&obj, "scale", &JsValue::from_f64(summary.map.scale))?;
     set(&obj, "width", &JsValue::from_f64(img.width as f64))?;
     set(&obj, "height", &JsValue::from_f64(img.height as f64))?;
     set(&obj, "channels", &JsValue::from_f64(img.stored_channels() as f64))?;
@@ -149,12 +176,14 @@ fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
     Ok(f)
 }
 
-/// What the page gets from a finished run: PNG at full depth, views, report.
-fn run_result(img: &Image, run: &RunOutput) -> Result<JsValue, JsError> {
-    let png = file::encode(&file::document_of(run.image.clone(), Format::Png), Format::Png, None).map_err(js_err)?;
+/// What the page gets from a finished run: the result file (full depth, the input's format and
+/// metadata), views, report.
+fn run_result(input: &[u8], max_megapixels: u32, settings: &Settings, img: &Image, run: &RunOutput) -> Result<JsValue, JsError> {
+    let (result, format) = result_file(input, max_megapixels, &run.image, settings)?;
     let obj = Object::new();
     let f = set_view_size(&obj, img)?;
-    set(&obj, "png", &bytes(&png))?;
+    set(&obj, "file", &bytes(&result))?;
+    set(&obj, "extension", &JsValue::from_str(format.extension()))?;
     set(&obj, "rgba", &bytes(&preview::rgba8(&run.image, f)))?;
     let sigma = pipeline::residual_view_sigma(img, &run.report);
     set(&obj, "residual", &bytes(&preview::residual_rgba8(img, &run.image, sigma, f)))?;
@@ -182,7 +211,7 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
         )));
     }
     let run = pipeline::denoise(&img, &settings, &JsProgress(on_progress)).map_err(js_err)?;
-    run_result(&img, &run)
+    run_result(input, max_megapixels, &settings, &img, &run)
 }
 
 /// First step of a patch-graph run split across workers: the method's planes (an array of
@@ -277,7 +306,7 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
         return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
     }
     let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
-    run_result(&img, &run)
+    run_result(input, max_megapixels, &settings, &img, &run)
 }
 
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.
@@ -297,4 +326,36 @@ pub fn group_at(input: &[u8], settings_json: &str, x: u32, y: u32, max_megapixel
     let (g, patch) = pipeline::group_at(&img, &settings, x as usize, y as usize).map_err(js_err)?;
     let v = serde_json::json!({"positions": g.positions, "similarity": g.similarity, "patch": patch});
     Ok(v.to_string())
+}
+
+/// Image `k` of a file (a page, or one channel of it) as a file of its own, for the workers: it
+/// reads back to the same working image as inside the whole file.
+#[wasm_bindgen(js_name = unitFile)]
+pub fn unit_file(input: &[u8], k: u32, max_megapixels: u32) -> Result<Uint8Array, JsError> {
+    let doc = decode_file(input, max_megapixels)?;
+    let one = doc.unit_document(k as usize).map_err(js_err)?;
+    let out = file::encode(&one, Format::Tiff, None).map_err(js_err)?;
+    Ok(Uint8Array::from(out.as_slice()))
+}
+
+/// The whole file again with every image replaced by its result (`results`: one result file per
+/// image, in order), in the input's format with its metadata; {file, extension}.
+#[wasm_bindgen(js_name = assembleFile)]
+pub fn assemble_file(input: &[u8], results: &Array, settings_json: &str, max_megapixels: u32) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let mut doc = decode_file(input, max_megapixels)?;
+    if results.length() as usize != doc.units() {
+        return Err(JsError::new(&format!("{} results for a file of {} images", results.length(), doc.units())));
+    }
+    for (k, r) in results.iter().enumerate() {
+        let r: Uint8Array = r.dyn_into().map_err(|_| JsError::new("a result sent to the worker is not a file"))?;
+        let one = decode_file(&r.to_vec(), max_megapixels)?;
+        doc.replace_unit(k, &one).map_err(js_err)?;
+    }
+    let format = doc.result_format();
+    let out = file::encode(&doc, format, Some(&Provenance::of(&settings))).map_err(js_err)?;
+    let obj = Object::new();
+    set(&obj, "file", &bytes(&out))?;
+    set(&obj, "extension", &JsValue::from_str(format.extension()))?;
+    Ok(obj.into())
 }

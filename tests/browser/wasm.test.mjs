@@ -17,12 +17,13 @@ test('open reports size, depth and an RGBA preview', () => {
   assert.equal(info.rgba.length, 256 * 256 * 4);
 });
 
-test('denoise returns a PNG of the same size and a report', () => {
+test('denoise returns a result file (PNG for a PNG input) of the same size and a report', () => {
   const settings = JSON.parse(pg.defaultSettings());
   settings.method = 'pixel-graph';
   const calls = [];
   const r = pg.denoise(sample, JSON.stringify(settings), 64, (f) => calls.push(f));
-  assert.equal(pg.open(r.png, 64).width, 256);
+  assert.equal(pg.open(r.file, 64).width, 256);
+  assert.equal(r.extension, 'png');
   assert.ok(calls.length > 0 && calls.every((f) => f >= 0 && f <= 1));
   assert.equal(JSON.parse(r.report).method, 'pixel-graph');
 });
@@ -86,7 +87,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   const basic = stage(null);
   const final = stage(basic);
   const r = pg.finishRun(sample, settings, [final], 64);
-  assert.ok(Buffer.from(r.png).equals(Buffer.from(whole.png)));
+  assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
   assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), prep.spectra, new Float32Array(10), new Float32Array(0), () => {}),
     /do not match the image size/);
 });

@@ -220,6 +220,8 @@ pub struct Metadata {
     pub fits_extensions: Vec<u8>,
     pub compression: Compression,
     pub big_tiff: bool,
+    /// TIFF Software as read (ours records the run there).
+    pub software: Option<String>,
 }
 
 /// A whole file: pages of one sample type and layout, each a working image.
@@ -288,6 +290,43 @@ impl Document {
             _ => return Err(Error::Internal("a result differs in size from its page".into())),
         }
         Ok(())
+    }
+    /// Takes unit `k`'s values from `result`, a one-image document of the same size (a unit
+    /// result written alone and read back), with its value map; blank pixels stay the input's.
+    pub fn replace_unit(&mut self, k: usize, result: &Document) -> Result<()> {
+        let per = self.per_page();
+        let src = result.pages.first().ok_or(Error::ZeroSize)?;
+        let page = self.pages.get_mut(k / per).ok_or_else(|| Error::BadSettings(format!("there is no image {}", k + 1)))?;
+        let (w, h) = (page.image.width, page.image.height);
+        let fits = src.image.width == w && src.image.height == h && result.sample == self.sample;
+        match self.layout {
+            Layout::Bands(_) if fits && src.image.channels.len() == 1 => {
+                page.image.channels[k % per] = src.image.channels[0].clone();
+                page.maps[k % per] = src.maps[0];
+            }
+            _ if fits && src.image.channels.len() == page.image.channels.len() => {
+                page.image.channels = src.image.channels.clone();
+                page.maps = src.maps.clone();
+            }
+            _ => {
+                return Err(Error::Mismatch(format!(
+                    "the result for image {} is {} x {} {}, the file's images are {w} x {h} {}",
+                    k + 1,
+                    src.image.width,
+                    src.image.height,
+                    result.sample.describe(),
+                    self.sample.describe()
+                )))
+            }
+        }
+        Ok(())
+    }
+    /// The format a result is saved in: the input's, except lossy or bare ones (JPEG, BMP) give PNG.
+    pub fn result_format(&self) -> Format {
+        match self.format {
+            Format::Jpeg | Format::Bmp => Format::Png,
+            f => f,
+        }
     }
     /// "page 3 of 5, channel 2 of 2" for progress and reports; empty for a single image.
     pub fn unit_label(&self, k: usize) -> String {
@@ -388,7 +427,9 @@ pub struct Provenance {
 }
 
 impl Provenance {
-    pub fn new(settings_json: String) -> Provenance {
+    /// The record of a run with `settings`, the settings as one line of JSON.
+    pub fn of(settings: &crate::settings::Settings) -> Provenance {
+        let settings_json = serde_json::to_string(settings).unwrap_or_default();
         Provenance { software: format!("Patchgraph {}", env!("CARGO_PKG_VERSION")), settings_json }
     }
     /// One line: "Patchgraph 0.1.0, denoised with settings {...}".

@@ -155,9 +155,13 @@ fn read_metadata(dec: &mut Decoder<Cursor<&[u8]>>, bytes: &[u8]) -> Metadata {
             Some(3) => ResolutionUnit::Centimetre,
             _ => ResolutionUnit::Inch, // the TIFF default
         };
-        m.resolution = Some(Resolution { x, y, unit });
+        // 1 x 1 without a unit is what writers put when they know nothing.
+        if !(unit == ResolutionUnit::None && x == 1.0 && y == 1.0) {
+            m.resolution = Some(Resolution { x, y, unit });
+        }
     }
     m.description = dec.get_tag_ascii_string(Tag::ImageDescription).ok();
+    m.software = dec.get_tag_ascii_string(Tag::Software).ok();
     m.icc_profile = dec.find_tag(Tag::IccProfile).ok().flatten().and_then(|v| v.into_u8_vec().ok());
     m.compression = match dec.find_tag(Tag::Compression).ok().flatten().and_then(|v| v.into_u16().ok()) {
         Some(5) => Compression::Lzw,

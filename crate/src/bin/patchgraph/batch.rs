@@ -97,7 +97,7 @@ fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progres
         .find(|f| doc.check_writable(*f).is_ok())
         .ok_or_else(|| Error::UnsupportedOutput("no output format here holds this file".into()))?;
     let run = run_file::denoise_file(&doc, settings, progress)?;
-    let provenance = Provenance::new(settings.to_json());
+    let provenance = Provenance::of(settings);
     let encoded = file::encode(&run.document, format, Some(&provenance))?;
     let sigma = run.reports.first().map_or(0.0, |r| r.sigma_used * doc.unit_map(0).scale);
     Ok(Computed { format, encoded, sigma })

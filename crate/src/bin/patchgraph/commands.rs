@@ -182,7 +182,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     progress.finish();
     let run = run?;
     let seconds = start.elapsed().as_secs_f64();
-    let provenance = Provenance::new(settings.to_json());
+    let provenance = Provenance::of(&settings);
     let bytes = file::encode(&run.document, format, Some(&provenance)).map_err(|e| Failure::about(&a.output, e))?;
     write_file(&a.output, &bytes)?;
     if let (Some(path), Some(map)) = (&a.cut_map, &run.cut_map) {
@@ -239,7 +239,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             seconds
         );
         if doc.units() > 1 {
-            outln!("  {} pages x {} images each, {} samples: every one denoised", summary.pages, summary.units / summary.pages, summary.sample.describe());
+            outln!("  {} pages, {} image(s) each, {} samples: every one denoised", summary.pages, summary.units / summary.pages, summary.sample.describe());
         }
         outln!("  noise: {} ({})", r.noise.model, r.noise.sentence);
         if let Some(f) = &r.noise.fallback {
@@ -328,6 +328,41 @@ pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
         outln!("PSNR {:.3} dB, SSIM {:.4} (data range {})", q.psnr, q.ssim, q.data_range);
         for (c, ch) in q.channels.iter().enumerate() {
             outln!("  channel {c}: PSNR {:.3} dB, SSIM {:.4}", ch.psnr, ch.ssim);
+        }
+    }
+    Ok(())
+}
+
+pub fn inspect(input: &Path, json_out: bool) -> CmdResult {
+    let doc = read_document(input, &DecodeLimits::default())?;
+    let s = doc.summary();
+    let m = &doc.meta;
+    // What records the making: TIFF Software, PNG text, FITS HISTORY.
+    let made_by: Vec<String> = m
+        .text
+        .iter()
+        .filter(|(k, _)| k == "Software")
+        .map(|(_, t)| t.clone())
+        .chain(m.software.clone())
+        .chain(m.fits_cards.iter().filter(|c| c.keyword_str() == "HISTORY").filter_map(|c| c.comment.clone()).take(1))
+        .collect();
+    if json_out {
+        let v = json!({"file": s, "resolution": m.resolution, "description": m.description,
+                       "icc_profile_bytes": m.icc_profile.as_ref().map(Vec::len), "exif_bytes": m.exif.as_ref().map(Vec::len),
+                       "text": m.text, "fits_cards": m.fits_cards.len(), "compression": m.compression,
+                       "big_tiff": m.big_tiff, "made_by": made_by});
+        outln!("{v}");
+    } else {
+        outln!("{}: {} {} x {}, {} samples, {} page(s), {} image(s) to denoise", input.display(), doc.format.info().name,
+            s.width, s.height, s.sample.describe(), s.pages, s.units);
+        if let Some(r) = m.resolution {
+            outln!("  resolution {} x {} per {:?}", r.x, r.y, r.unit);
+        }
+        if let Some(d) = &m.description {
+            outln!("  description: {d}");
+        }
+        for line in &made_by {
+            outln!("  made by: {line}");
         }
     }
     Ok(())

@@ -59,6 +59,12 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// What a file holds: format, sample type, pages, channels, metadata, and how it was made.
+    Inspect {
+        input: PathBuf,
+        #[arg(long)]
+        json: bool,
+    },
     /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
     Metrics {
         clean: PathBuf,
@@ -99,6 +105,7 @@ fn main() -> ExitCode {
             batch::batch(&inputs, &output, &settings, shard.as_deref(), json)
         }
         Command::Metrics { clean, test, json } => commands::metrics(&clean, &test, json),
+        Command::Inspect { input, json } => commands::inspect(&input, json),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
