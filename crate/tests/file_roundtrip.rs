@@ -144,3 +144,30 @@ fn a_unit_written_alone_reads_back_to_the_same_working_image() {
         }
     }
 }
+
+/// The README's table of formats, as the one list of formats gives it.
+fn readme_rows() -> String {
+    file::FORMATS
+        .iter()
+        .map(|f| {
+            let samples: Vec<&str> = f.samples.iter().map(|s| s.describe()).collect();
+            format!("| {} (.{}) | {} | {} | {} |", f.name, f.extensions.join(", ."), samples.join(", "), if f.pages { "many" } else { "one" }, f.keeps)
+        })
+        .collect::<Vec<_>>()
+        .join("\n")
+}
+
+#[test]
+fn the_readme_lists_the_formats_as_the_program_knows_them() {
+    // Regenerate with: PATCHGRAPH_WRITE_README=1 cargo test --release readme
+    let path = concat!(env!("CARGO_MANIFEST_DIR"), "/../README.md");
+    let text = std::fs::read_to_string(path).unwrap();
+    let rows = readme_rows();
+    if std::env::var_os("PATCHGRAPH_WRITE_README").is_some() {
+        let start = text.find("|---|---|---|---|\n").unwrap() + "|---|---|---|---|\n".len();
+        let end = start + text[start..].find("\n\n").unwrap();
+        std::fs::write(path, format!("{}{}{}", &text[..start], rows, &text[end..])).unwrap();
+        return;
+    }
+    assert!(text.contains(&rows), "README's format table differs from file::FORMATS; regenerate it:\n{rows}");
+}
