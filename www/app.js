@@ -136,9 +136,14 @@ async function openSource(name, bytes, fromSample = false) {
   }
 }
 
+// Metrics against a reference that is no longer used disappear with it.
 function dropReference(why) {
   app.reference = null;
   $('reference-info').textContent = why;
+  for (const p of app.panes) {
+    for (const r of p.results.values()) r.quality = null;
+    p.showMetrics();
+  }
 }
 
 async function openReference(name, bytes) {
@@ -223,7 +228,8 @@ function wireBatch() {
 
 function csv() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
-  const cols = ['setting', 'method', 'noise_model', 'sigma', 'sigma_estimated', 'residual_std_over_sigma', 'residual_lag1_correlation',
+  const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
+    'search_radius', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
     'residual_edge_correlation', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';

@@ -67,8 +67,10 @@ export async function runBatch(files, pane, download) {
   }
   const csv = `${report.map((r) => r.map(csvCell).join(',')).join('\n')}\n`;
   entries.push({ name: 'report.csv', bytes: new TextEncoder().encode(csv) });
+  // The setting every file was denoised with, loadable in a pane or with `--settings`.
+  entries.push({ name: 'settings.json', bytes: new TextEncoder().encode(JSON.stringify(pane.settings, null, 2)) });
   const ok = report.filter((r) => r[1]).length - 1;
-  $('batch-summary').textContent = `${ok} of ${files.length} files denoised; the ZIP holds the results and report.csv.`;
+  $('batch-summary').textContent = `${ok} of ${files.length} files denoised with setting ${pane.name}; the ZIP holds the results, report.csv and settings.json.`;
   download(`patchgraph-batch-${pane.name}.zip`, makeZip(entries));
   $('batch-start').disabled = false;
   $('batch-stop').disabled = true;

@@ -19,6 +19,17 @@ const fields = {
   'px-passes': { get: (s) => s.pixel_graph.passes, set: (s, v) => { s.pixel_graph.passes = +v; } },
 };
 
+// One plain sentence from the residual checks. The limits are rules of thumb of ours (not from a
+// source): they hold for white noise; grainy (correlated) noise leaves a correlated residual.
+function verdict(m, report) {
+  const correlatedNoise = /correlated/.test(report.noise.model);
+  if (m.residual_edge_correlation > 0.15) return 'The removed part follows edges: some detail was removed with the noise.';
+  if (m.residual_std_over_sigma > 1.15) return 'More than the noise was removed: fine detail may be lost.';
+  if (!correlatedNoise && m.residual_lag1_correlation > 0.3) return 'The removed part is smoother than noise: it may hold structure.';
+  if (m.residual_std_over_sigma < 0.7) return 'Less than the estimated noise was removed: some noise remains.';
+  return 'The removed part looks like noise.';
+}
+
 const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
 const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 
@@ -57,6 +68,12 @@ export class Pane {
     q('.load-json').addEventListener('change', (e) => this.loadSettings(e.target));
     q('.remove').addEventListener('click', () => this.app.removePane(this));
     attach(this.viewport, (x, y) => { if (q('.show-group').checked) this.showGroup(x, y); });
+    // Keyboard: Enter on the view shows the group at the view's centre.
+    this.viewport.addEventListener('keydown', (e) => {
+      if (e.key !== 'Enter' || !q('.show-group').checked) return;
+      const r = this.viewport.getBoundingClientRect();
+      this.showGroup(Math.floor((r.width / 2 - view.x) / view.scale), Math.floor((r.height / 2 - view.y) / view.scale));
+    });
     board.appendChild(el);
   }
 
@@ -78,6 +95,19 @@ export class Pane {
     this.settings.sigma = auto ? 'auto' : Number(f.elements.sigma.value);
     this.el.dataset.method = this.settings.method;
     this.app.remember();
+    this.markStale();
+  }
+
+  // A result shows what its settings made: after any change it is marked out of date.
+  isStale() {
+    return Boolean(this.result) && JSON.stringify(this.result.settings) !== JSON.stringify(this.settings);
+  }
+
+  markStale() {
+    const stale = this.isStale();
+    this.el.classList.toggle('stale', stale);
+    this.q('.stale-note').hidden = !stale;
+    this.q('.save-png').textContent = stale ? 'Save result (runs the new settings first)' : 'Save result';
   }
 
   async loadSettings(input) {
@@ -89,9 +119,10 @@ export class Pane {
       this.settings = JSON.parse(normalised);
       this.writeForm();
       this.app.remember();
+      this.markStale();
       this.error('');
     } catch (e) {
-      this.error(`${file.name}: ${e.message}`);
+      this.error(`${file.name} was not loaded: it is not a Patchgraph settings file (${e.message})`);
     }
   }
 
@@ -135,6 +166,7 @@ export class Pane {
       stage.textContent = `done in ${fmt(r.seconds)} s on ${workers} worker${workers > 1 ? 's' : ''}` +
         (peakBytes ? `, at most ${mib(peakBytes)} each` : '');
       bar.value = 1;
+      this.markStale();
       this.paint();
       await this.measure();
     } catch (e) {
@@ -166,40 +198,72 @@ export class Pane {
     const r = this.result;
     if (!r) return null;
     const res = r.report.residual;
+    const st = r.settings;
+    const round = (v, d) => (v === null || v === undefined || !Number.isFinite(v) ? v : Number(v.toFixed(d)));
     return {
       setting: this.name,
       method: r.report.method,
+      noise: st.noise,
       noise_model: r.report.noise.model,
-      sigma: r.report.sigma_used,
+      sigma: round(this.fileSigma(r), 6),
       sigma_estimated: r.report.sigma_was_estimated,
-      residual_std_over_sigma: mean(res.map((x) => x.std_over_sigma)),
-      residual_lag1_correlation: mean(res.map((x) => x.lag1_autocorrelation)),
-      residual_edge_correlation: mean(res.map((x) => x.edge_correlation)),
-      psnr: r.quality ? r.quality.psnr : null,
-      ssim: r.quality ? r.quality.ssim : null,
-      seconds: r.seconds,
+      // The parameters that made the result, so the table and the CSV say what was compared.
+      threshold: st.method === 'patch-graph' ? st.patch_graph.threshold : null,
+      patch_size: st.method === 'patch-graph' ? st.patch_graph.patch_size : null,
+      group_size: st.method === 'patch-graph' ? st.patch_graph.group_size_hard : null,
+      search_radius: st.method === 'patch-graph' ? st.patch_graph.search_radius : null,
+      filter: st.method === 'pixel-graph' ? st.pixel_graph.filter : null,
+      strength: st.method === 'pixel-graph' ? st.pixel_graph.strength : null,
+      edge_cut: st.method === 'pixel-graph' ? st.pixel_graph.cut_threshold : null,
+      passes: st.method === 'pixel-graph' ? st.pixel_graph.passes : null,
+      residual_std_over_sigma: round(mean(res.map((x) => x.std_over_sigma)), 4),
+      residual_lag1_correlation: round(mean(res.map((x) => x.lag1_autocorrelation)), 4),
+      residual_edge_correlation: round(mean(res.map((x) => x.edge_correlation)), 4),
+      psnr: r.quality ? round(r.quality.psnr, 3) : null,
+      ssim: r.quality ? round(r.quality.ssim, 4) : null,
+      seconds: round(r.seconds, 3),
     };
+  }
+
+  // Sigma in the file's own units (the method works on a scaled copy of float data).
+  fileSigma(r) {
+    const scale = this.app.source && this.app.source.info.scale ? this.app.source.info.scale : 1;
+    return r.report.stabilised ? r.report.sigma_used : r.report.sigma_used * scale;
+  }
+
+  sigmaText(m) {
+    const r = this.result;
+    const info = this.app.source ? this.app.source.info : {};
+    const digits = m.sigma >= 1 ? 2 : 5;
+    const unit = r.report.stabilised ? 'after stabilising photon noise (1 = pure photon noise)'
+      : /float/.test(info.sample || '') ? 'in the file\'s own units' : `grey levels of the ${(info.sample || '').replace(' unsigned', '')} data`;
+    return `${fmt(m.sigma, digits)} ${unit} (${m.sigma_estimated ? 'estimated' : 'given'})`;
   }
 
   showMetrics() {
     const m = this.metricsRow();
     const dl = this.q('.metrics');
     dl.replaceChildren();
+    this.q('.verdict').textContent = '';
     if (!m) return;
     const rows = [
-      ['Noise model', m.noise_model],
-      ['Sigma', `${fmt(m.sigma)}${this.result.report.stabilised ? ' after stabilising photon noise' : ''} (${m.sigma_estimated ? 'estimated' : 'given'})`],
-      ['Residual std / sigma', fmt(m.residual_std_over_sigma, 3)],
-      ['Residual neighbour correlation', fmt(m.residual_lag1_correlation, 3)],
-      ['Residual–edge correlation', fmt(m.residual_edge_correlation, 3)],
-      ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`],
-      ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4)],
+      ['Noise model', m.noise_model, ''],
+      ['Sigma', this.sigmaText(m), 'the noise level the method removed'],
+      ['Residual std / sigma', fmt(m.residual_std_over_sigma, 3), 'how much was removed, in units of the noise: near 1 for white noise'],
+      ['Residual neighbour correlation', fmt(m.residual_lag1_correlation, 3),
+        'grain of what was removed: near 0 for white noise; higher when structure (or grainy noise) was removed'],
+      ['Residual–edge correlation', fmt(m.residual_edge_correlation, 3),
+        'whether what was removed follows the image\'s edges: near 0 is good; above 0.15 detail went too'],
+      ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`, 'higher is better; +1 dB is 21% less squared error'],
+      ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4), 'structural similarity; 1 is identical'],
     ];
-    for (const [k, v] of rows) {
+    for (const [k, v, help] of rows) {
       const dt = document.createElement('dt'); dt.textContent = k;
       const dd = document.createElement('dd'); dd.textContent = v;
+      if (help) { const small = document.createElement('small'); small.textContent = help; dd.append(small); }
       dl.append(dt, dd);
     }
+    this.q('.verdict').textContent = verdict(m, this.result.report);
   }
 
   paint() {
@@ -209,9 +273,15 @@ export class Pane {
     const r = this.result;
     const pick = { input: src.info.rgba, result: r && r.rgba, residual: r && r.residual, cuts: r && r.cuts };
     const rgba = pick[this.viewName] || src.info.rgba;
-    const noCuts = 'The cut map exists for the pixel-graph method only; showing the input.';
-    if (this.viewName === 'cuts' && r && !r.cuts) this.error(noCuts);
-    else if (this.q('.error').textContent === noCuts) this.error('');
+    const legends = {
+      input: 'The input as opened.',
+      result: r ? 'The result.' : 'No result yet: press Run. Showing the input.',
+      residual: r ? 'Residual = input − result. Mid-grey: nothing removed; lighter or darker: removed. It should look like even grain, with no edges or shapes.'
+        : 'No result yet: press Run. Showing the input.',
+      cuts: r && r.cuts ? 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.'
+        : 'No cut map: it comes with a pixel-graph run. Showing the input.',
+    };
+    this.q('.legend').textContent = legends[this.viewName] || '';
     for (const c of [this.canvas, this.overlay]) {
       if (c.width !== width || c.height !== height) { c.width = width; c.height = height; }
     }
@@ -251,6 +321,7 @@ export class Pane {
   showUnit(k) {
     const r = this.results.get(k);
     this.result = r && r.rgba ? r : null;
+    this.markStale();
     this.showMetrics();
     this.clearOverlay();
     this.paint();
@@ -262,6 +333,7 @@ export class Pane {
     this.result = null;
     this.saved = true;
     this.q('.save-png').disabled = true;
+    this.markStale();
   }
 
   // Saves the whole file in its own format: every image of it, those not yet run with these
@@ -278,7 +350,7 @@ export class Pane {
     this.error('');
     this.busy(true);
     this.run = runWholeFile(src.file, units, settings, this.settings.method, (f, s) => { bar.value = f; stage.textContent = s; },
-      (k) => (same(this.results.get(k)) ? this.results.get(k) : (units === 1 && this.result ? this.result : null)),
+      (k) => (same(this.results.get(k)) ? this.results.get(k) : null),
       (k, r) => {
         r.settings = structuredClone(this.settings);
         // Images not on screen keep only what saving needs.
@@ -289,6 +361,8 @@ export class Pane {
       this.app.download(`${base}-denoised-${this.name}.${out.extension}`, new Blob([out.file]));
       this.saved = true;
       stage.textContent = units > 1 ? `saved all ${units} images` : 'saved';
+      const shown = this.results.get(src.unit);
+      if (shown && shown.rgba && this.app.source === src) { this.result = shown; this.markStale(); this.paint(); await this.measure(); }
     } catch (e) {
       stage.textContent = e instanceof Stopped ? 'stopped; nothing was saved' : 'saving failed';
       if (!(e instanceof Stopped)) this.error(e.message);

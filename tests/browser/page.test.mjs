@@ -151,6 +151,7 @@ test('a batch of five files with one bad file gives four results and a report in
   const bad = join(OUT, 'broken.png');
   writeFileSync(bad, 'not a picture');
   const files = ['cells-noisy.png', 'chart-noisy.png', 'board-noisy.png', 'chart-clean.png'].map((f) => join(SAMPLES, f));
+  await page.locator('#batch > summary').click(); // the batch section opens on request
   await page.locator('#batch-pane').selectOption('B');
   await page.setInputFiles('#batch-files', [...files.slice(0, 2), bad, ...files.slice(2)]);
   const [d] = await Promise.all([page.waitForEvent('download', { timeout: 120000 }), page.locator('#batch-start').click()]);
@@ -165,6 +166,7 @@ print(json.dumps({"names": z.namelist(), "report": z.read("report.csv").decode()
   const results = listing.names.filter((n) => n.endsWith('.png'));
   assert.equal(results.length, 4, listing.names.join(', '));
   assert.match(listing.report, /broken\.png,,,,.*not an image/);
+  assert.ok(listing.names.includes('settings.json'), 'the ZIP records the setting used');
   assert.match(await page.locator('#batch-summary').textContent(), /4 of 5 files denoised/);
   await page.screenshot({ path: join(OUT, 'batch.png'), fullPage: true });
 });

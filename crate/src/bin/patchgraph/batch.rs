@@ -127,8 +127,11 @@ fn csv_field(s: &str) -> String {
     if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
 }
 
-pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: &Path, shard: Option<&str>, json: bool) -> Result<(), Failure> {
-    let settings = read_settings(settings_path)?;
+pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: Option<&Path>, shard: Option<&str>, json: bool) -> Result<(), Failure> {
+    let settings = match settings_path {
+        Some(p) => read_settings(p)?,
+        None => patchgraph::Settings::default(),
+    };
     let (k, n) = match shard {
         Some(s) => parse_shard(s)?,
         None => (1, 1),

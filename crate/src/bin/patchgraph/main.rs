@@ -19,7 +19,9 @@ struct Cli {
 
 #[derive(Clone, Copy, ValueEnum)]
 pub enum MethodArg {
+    /// Fast: a pixel graph cut at intensity edges, filtered in the vertex domain.
     PixelGraph,
+    /// Best quality: groups of similar patches filtered together in a graph transform.
     PatchGraph,
 }
 
@@ -39,6 +41,7 @@ enum Command {
     Denoise(commands::DenoiseArgs),
     /// Fit the noise of an image: level per channel, how it grows with brightness, its spectrum.
     Noise {
+        /// The image (its first image, for stacks).
         input: PathBuf,
         /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
@@ -49,26 +52,34 @@ enum Command {
         /// Image files and/or folders of images.
         #[arg(required = true)]
         inputs: Vec<PathBuf>,
+        /// The folder the results go to (created if missing); inputs are never replaced.
         #[arg(short, long)]
         output: PathBuf,
+        /// Settings JSON for every file; the defaults of `denoise` when not given.
         #[arg(long)]
-        settings: PathBuf,
+        settings: Option<PathBuf>,
         /// Only this share of the sorted file list: K/N takes files K, K+N, K+2N, ...
         #[arg(long)]
         shard: Option<String>,
+        /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
     },
     /// What a file holds: format, sample type, pages, channels, metadata, and how it was made.
     Inspect {
+        /// Any file Patchgraph reads.
         input: PathBuf,
+        /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
     },
     /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
     Metrics {
+        /// The clean reference.
         clean: PathBuf,
+        /// The image to score (a result, or the noisy input for comparison).
         test: PathBuf,
+        /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
     },
@@ -102,7 +113,7 @@ fn main() -> ExitCode {
         Command::Denoise(args) => commands::denoise(args),
         Command::Noise { input, json } => commands::noise(&input, json),
         Command::Batch { inputs, output, settings, shard, json } => {
-            batch::batch(&inputs, &output, &settings, shard.as_deref(), json)
+            batch::batch(&inputs, &output, settings.as_deref(), shard.as_deref(), json)
         }
         Command::Metrics { clean, test, json } => commands::metrics(&clean, &test, json),
         Command::Inspect { input, json } => commands::inspect(&input, json),

@@ -1,0 +1,67 @@
+// The board as a person meets it: results marked out of date when their settings change, metrics
+// of a refused reference gone, views offered only where the method has them, a plain verdict.
+import { test, before, after } from 'node:test';
+import assert from 'node:assert/strict';
+import { writeFileSync } from 'node:fs';
+import { join } from 'node:path';
+import { start, ROOT, OUT } from './harness.mjs';
+
+const SAMPLES = join(ROOT, 'sample-images');
+let h; let page;
+const consoleErrors = [];
+
+before(async () => {
+  h = await start();
+  page = await h.context.newPage();
+  page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
+  page.on('pageerror', (e) => consoleErrors.push(String(e)));
+  await page.goto(h.url);
+  await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
+});
+
+after(async () => { await h.close(); });
+
+const pane = (i) => page.locator('.pane').nth(i);
+
+async function run(i) {
+  await pane(i).locator('.run').click();
+  await pane(i).locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+  assert.match(await pane(i).locator('.stage').textContent(), /done/);
+}
+
+test('a result is marked out of date after an edit and after loading settings', async () => {
+  await page.waitForFunction(() => /Reference: cells-clean/.test(document.getElementById('reference-info').textContent));
+  await run(0);
+  assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), false);
+  assert.match(await pane(0).locator('.metrics').textContent(), /PSNR against reference\d/);
+  assert.match(await pane(0).locator('.verdict').textContent(), /\w+/);
+  await pane(0).locator('input[name=pg-threshold]').fill('3.5');
+  assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), true);
+  assert.equal(await pane(0).locator('.stale-note').isVisible(), true);
+  assert.match(await pane(0).locator('.save-png').textContent(), /runs the new settings first/);
+  await run(0);
+  assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), false);
+
+  await run(1);
+  const file = join(OUT, 'board-settings.json');
+  writeFileSync(file, JSON.stringify({ method: 'patch-graph', sigma: 25, patch_graph: { threshold: 3.5 } }));
+  await pane(1).locator('.load-json').setInputFiles(file);
+  await page.waitForFunction(() => document.querySelectorAll('.pane')[1].classList.contains('stale'));
+  await page.screenshot({ path: join(OUT, 'board-stale.png'), fullPage: true });
+});
+
+test('metrics against a refused reference disappear', async () => {
+  await page.setInputFiles('#reference', join(SAMPLES, 'board-clean.png'));
+  await page.waitForFunction(() => /Reference not used/.test(document.getElementById('reference-info').textContent));
+  assert.match(await pane(0).locator('.metrics').textContent(), /PSNR against referenceno reference/);
+});
+
+test('views are offered only where the method has them', async () => {
+  // Pane 0 runs the patch-graph method, pane 1 was switched to it by its settings file.
+  assert.equal(await pane(0).locator('input[value=cuts]').isVisible(), false);
+  assert.equal(await pane(0).locator('.show-group').isVisible(), true);
+  await pane(1).locator('select[name=method]').selectOption('pixel-graph');
+  assert.equal(await pane(1).locator('input[value=cuts]').isVisible(), true);
+  assert.equal(await pane(1).locator('.show-group').isVisible(), false);
+  assert.deepEqual(consoleErrors, []);
+});
