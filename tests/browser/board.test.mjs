@@ -4,19 +4,14 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { start, ROOT, OUT } from './harness.mjs';
+import { start, openReady, ROOT, OUT } from './harness.mjs';
 
 const SAMPLES = join(ROOT, 'sample-images');
-let h; let page;
-const consoleErrors = [];
+let h; let page; let consoleErrors;
 
 before(async () => {
   h = await start();
-  page = await h.context.newPage();
-  page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
-  page.on('pageerror', (e) => consoleErrors.push(String(e)));
-  await page.goto(h.url);
-  await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
+  ({ page, consoleErrors } = await openReady(h));
 });
 
 after(async () => { await h.close(); });

@@ -5,12 +5,11 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
-import { start, ROOT, OUT } from './harness.mjs';
+import { start, openReady, ROOT, OUT } from './harness.mjs';
 
 const PY = process.env.PATCHGRAPH_PYTHON || join(ROOT, '.venv', 'bin', 'python');
 const py = (code) => execFileSync(PY, ['-c', code], { encoding: 'utf8' }).trim();
-let h; let page;
-const consoleErrors = [];
+let h; let page; let consoleErrors;
 
 before(async () => {
   py(`
@@ -27,11 +26,7 @@ cube[1, 10:20, 10:20] = np.nan
 fits.PrimaryHDU(cube).writeto('${OUT}/cube-in.fits', overwrite=True)
 `);
   h = await start();
-  page = await h.context.newPage();
-  page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
-  page.on('pageerror', (e) => consoleErrors.push(String(e)));
-  await page.goto(h.url);
-  await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
+  ({ page, consoleErrors } = await openReady(h));
 });
 
 after(async () => { await h.close(); });

@@ -24,3 +24,14 @@ export async function start() {
   });
   return { server, url, context, async close() { await context.close(); server.close(); } };
 }
+
+// A page of the served app, loaded and ready, with its console errors collected.
+export async function openReady(h) {
+  const page = await h.context.newPage();
+  const consoleErrors = [];
+  page.on('console', (m) => { if (m.type() === 'error') consoleErrors.push(m.text()); });
+  page.on('pageerror', (e) => consoleErrors.push(String(e)));
+  await page.goto(h.url);
+  await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
+  return { page, consoleErrors };
+}
