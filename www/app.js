@@ -126,7 +126,7 @@ async function openSource(name, bytes, fromSample = false) {
     $('source-info').textContent = `${name}: ${describe(info, fileInfo)}`;
     setupSlices(fileInfo);
     setImageSize(info.width, info.height);
-    for (const p of app.panes) { p.clearResults(); p.showMetrics(); p.clearOverlay(); p.paint(); }
+    for (const p of app.panes) { p.clearResults(); p.showEstimate(info.sigma * info.scale); p.showMetrics(); p.clearOverlay(); p.paint(); }
     fit(app.panes[0].viewport);
     refreshNoise(app.source, shown);
     if (hadOne && app.reference) dropReference('Reference set aside: the image changed. Load its clean reference to see PSNR and SSIM.');

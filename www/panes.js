@@ -87,6 +87,13 @@ export class Pane {
     this.el.dataset.method = this.settings.method;
   }
 
+  // With "Estimate sigma" on, the sigma box shows the image's estimate (in the file's units), so
+  // unticking it starts from a sensible value.
+  showEstimate(sigma) {
+    const box = this.q('.controls').elements.sigma;
+    if (this.settings.sigma === 'auto' && Number.isFinite(sigma)) box.value = Number(sigma.toPrecision(4));
+  }
+
   readForm() {
     const f = this.q('.controls');
     for (const [name, fld] of Object.entries(fields)) fld.set(this.settings, f.elements[name].value);

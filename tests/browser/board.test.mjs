@@ -24,6 +24,14 @@ async function run(i) {
   assert.match(await pane(i).locator('.stage').textContent(), /done/);
 }
 
+test('at 1280 x 800 the first screen shows the settings, Run and most of the picture', async () => {
+  const box = await pane(0).locator('.viewport').boundingBox();
+  const run = await pane(0).locator('.run').boundingBox();
+  assert.ok(run.y + run.height < 800, `Run is at ${run.y}`);
+  assert.ok(800 - box.y >= 300, `only ${800 - box.y} px of the picture show on the first screen`);
+  await page.screenshot({ path: join(OUT, 'board-first-screen.png') });
+});
+
 test('a result is marked out of date after an edit and after loading settings', async () => {
   await page.waitForFunction(() => /Reference: cells-clean/.test(document.getElementById('reference-info').textContent));
   await run(0);
@@ -59,4 +67,12 @@ test('views are offered only where the method has them', async () => {
   assert.equal(await pane(1).locator('input[value=cuts]').isVisible(), true);
   assert.equal(await pane(1).locator('.show-group').isVisible(), false);
   assert.deepEqual(consoleErrors, []);
+});
+
+test('on a phone-sized window nothing runs off the side', async () => {
+  await page.setViewportSize({ width: 390, height: 844 });
+  const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  await page.screenshot({ path: join(OUT, 'board-phone.png'), fullPage: false });
+  await page.setViewportSize({ width: 1280, height: 800 });
+  assert.ok(overflow <= 0, `the page is ${overflow} px wider than the window`);
 });
