@@ -59,7 +59,7 @@ const app = {
     const keep = sel.value;
     sel.replaceChildren(...this.panes.map((p) => new Option(`Setting ${p.name}`, p.name)));
     if (this.panes.some((p) => p.name === keep)) sel.value = keep;
-    for (const p of this.panes) p.q('.remove').disabled = this.panes.length <= 1;
+    for (const p of this.panes) { p.q('.remove').disabled = this.panes.length <= 1; p.listOthers(this.panes); }
   },
 };
 
@@ -226,15 +226,31 @@ function wireBatch() {
   $('batch-stop').addEventListener('click', stopBatch);
 }
 
-function csv() {
+// One table of every setting's parameters and metrics: shown under the board, and the CSV.
+function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
   const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
     'search_radius', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
     'residual_edge_correlation', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';
-  return [['image', ...cols].join(','), ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))].join(','))].join('\n') + '\n';
+  return [['image', ...cols], ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))])];
 }
+
+function csv() {
+  return `${tableRows().map((r) => r.join(',')).join('\n')}\n`;
+}
+
+app.refreshTable = () => {
+  const rows = tableRows();
+  const table = $('summary-table');
+  table.hidden = rows.length < 2;
+  table.replaceChildren(...rows.map((r, i) => {
+    const tr = document.createElement('tr');
+    tr.append(...r.map((v) => { const c = document.createElement(i ? 'td' : 'th'); c.textContent = v; return c; }));
+    return tr;
+  }));
+};
 
 function wireToolbar() {
   const vp = () => app.panes[0].viewport;

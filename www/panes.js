@@ -2,6 +2,7 @@
 import { call, Stopped } from './tasks.js';
 import { runImage, runWholeFile } from './wholefile.js';
 import { view, applyTo, attach } from './view.js';
+import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 
 const fields = {
   method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
@@ -59,8 +60,8 @@ export class Pane {
     q('.run').addEventListener('click', () => this.start());
     q('.stop').addEventListener('click', () => this.stop());
     q('.views').addEventListener('change', (e) => {
-      if (e.target.type === 'radio') { this.viewName = e.target.value; this.paint(); }
-      if (e.target.classList.contains('show-group') && !e.target.checked) this.clearOverlay();
+      if (e.target.type === 'radio') this.show(e.target.value);
+      if (e.target.classList.contains('compare-with')) this.paint();
     });
     q('.save-png').addEventListener('click', () => this.save());
     q('.save-json').addEventListener('click', () => this.app.download(`patchgraph-setting-${name}.json`,
@@ -68,6 +69,12 @@ export class Pane {
     q('.load-json').addEventListener('change', (e) => this.loadSettings(e.target));
     q('.remove').addEventListener('click', () => this.app.removePane(this));
     attach(this.viewport, (x, y) => { if (q('.show-group').checked) this.showGroup(x, y); });
+    q('.split-at').addEventListener('input', () => this.paint());
+    q('.show-group').addEventListener('change', (e) => { if (!e.target.checked) this.clearOverlay(); });
+    // Keyboard: X flips between this result and the other setting's.
+    this.viewport.addEventListener('keydown', (e) => {
+      if (e.key === 'x' || e.key === 'X') this.show(this.viewName === 'other' ? 'result' : 'other');
+    });
     // Keyboard: Enter on the view shows the group at the view's centre.
     this.viewport.addEventListener('keydown', (e) => {
       if (e.key !== 'Enter' || !q('.show-group').checked) return;
@@ -175,6 +182,8 @@ export class Pane {
       bar.value = 1;
       this.markStale();
       this.paint();
+      // Views of other settings that compare with this one change too.
+      for (const p of this.app.panes) if (p !== this) p.paint();
       await this.measure();
     } catch (e) {
       stage.textContent = e instanceof Stopped ? 'stopped' : 'failed';
@@ -252,7 +261,7 @@ export class Pane {
     const dl = this.q('.metrics');
     dl.replaceChildren();
     this.q('.verdict').textContent = '';
-    if (!m) return;
+    if (!m) { this.app.refreshTable(); return; }
     const rows = [
       ['Noise model', m.noise_model, ''],
       ['Sigma', this.sigmaText(m), 'the noise level the method removed'],
@@ -271,6 +280,31 @@ export class Pane {
       dl.append(dt, dd);
     }
     this.q('.verdict').textContent = verdict(m, this.result.report);
+    this.app.refreshTable();
+  }
+
+  show(name) {
+    this.viewName = name;
+    for (const radio of this.el.querySelectorAll('.views input[type=radio]')) radio.checked = radio.value === name;
+    this.q('.split-at').hidden = name !== 'split';
+    this.paint();
+  }
+
+  // The setting chosen in "with", or the first other one.
+  other() {
+    const name = this.q('.compare-with').value;
+    return this.app.panes.find((p) => p !== this && p.name === name) || this.app.panes.find((p) => p !== this);
+  }
+
+  // Other settings offered in "with" (called when settings come and go).
+  listOthers(panes) {
+    const sel = this.q('.compare-with');
+    const keep = sel.value;
+    const others = panes.filter((p) => p !== this);
+    sel.replaceChildren(...others.map((p) => new Option(`Setting ${p.name}`, p.name)));
+    if (others.some((p) => p.name === keep)) sel.value = keep;
+    // With two settings there is only one to compare with: no need to ask.
+    this.q('.compare-with-label').hidden = others.length < 2;
   }
 
   paint() {
@@ -278,8 +312,22 @@ export class Pane {
     if (!src) return;
     const { viewWidth: width, viewHeight: height, viewFactor } = src.info;
     const r = this.result;
-    const pick = { input: src.info.rgba, result: r && r.rgba, residual: r && r.residual, cuts: r && r.cuts };
+    const o = this.other();
+    const mine = r && r.rgba;
+    const theirs = o && o.result && o.result.rgba;
+    const both = mine && theirs;
+    const pick = {
+      input: src.info.rgba,
+      result: mine,
+      residual: r && r.residual,
+      cuts: r && r.cuts,
+      other: theirs,
+      split: both && split(mine, theirs, width, height, (width * Number(this.q('.split-at').value)) / 100),
+      difference: both && difference(mine, theirs),
+    };
     const rgba = pick[this.viewName] || src.info.rgba;
+    const them = o ? `Setting ${o.name}` : 'another setting';
+    const needBoth = `Both this setting and ${them} need a result: press Run in each. Showing the input.`;
     const legends = {
       input: 'The input as opened.',
       result: r ? 'The result.' : 'No result yet: press Run. Showing the input.',
@@ -287,6 +335,9 @@ export class Pane {
         : 'No result yet: press Run. Showing the input.',
       cuts: r && r.cuts ? 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.'
         : 'No cut map: it comes with a pixel-graph run. Showing the input.',
+      other: theirs ? `${them}'s result, in this view (X on the view flips back and forth).` : `${them} has no result yet. Showing the input.`,
+      split: both ? `Left of the white line: Setting ${this.name}; right: ${them}. The slider moves the line.` : needBoth,
+      difference: both ? `Difference between Setting ${this.name} and ${them}, ${DIFFERENCE_GAIN} × brighter: black where they agree.` : needBoth,
     };
     this.q('.legend').textContent = legends[this.viewName] || '';
     for (const c of [this.canvas, this.overlay]) {

@@ -2,7 +2,7 @@
 // of a refused reference gone, views offered only where the method has them, a plain verdict.
 import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
-import { writeFileSync } from 'node:fs';
+import { writeFileSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { start, openReady, ROOT, OUT } from './harness.mjs';
 
@@ -28,6 +28,7 @@ test('at 1280 x 800 the first screen shows the settings, Run and most of the pic
   const box = await pane(0).locator('.viewport').boundingBox();
   const run = await pane(0).locator('.run').boundingBox();
   assert.ok(run.y + run.height < 800, `Run is at ${run.y}`);
+  await page.screenshot({ path: join(OUT, 'board-first-screen.png') });
   assert.ok(800 - box.y >= 300, `only ${800 - box.y} px of the picture show on the first screen`);
   await page.screenshot({ path: join(OUT, 'board-first-screen.png') });
 });
@@ -67,6 +68,62 @@ test('views are offered only where the method has them', async () => {
   assert.equal(await pane(1).locator('input[value=cuts]').isVisible(), true);
   assert.equal(await pane(1).locator('.show-group').isVisible(), false);
   assert.deepEqual(consoleErrors, []);
+});
+
+// The canvas of pane i as a plain array, kept in the page under `key`.
+const grab = (i, key) => page.evaluate(([i, key]) => {
+  const c = document.querySelectorAll('.pane')[i].querySelector('.picture');
+  window[key] = Array.from(c.getContext('2d').getImageData(0, 0, c.width, c.height).data);
+  return [c.width, c.height];
+}, [i, key]);
+
+test('flip, split and difference show the two results as they are', async () => {
+  await pane(0).locator('input[value=result]').check();
+  await pane(1).locator('input[value=result]').check();
+  const [w, h] = await grab(0, 'A');
+  await grab(1, 'B');
+  assert.equal(await pane(0).locator('.compare-with').inputValue(), 'B'); // the only other setting
+  await pane(0).locator('input[value=other]').check();
+  await grab(0, 'flip');
+  await pane(0).locator('input[value=difference]').check();
+  await grab(0, 'diff');
+  await pane(0).locator('input[value=split]').check();
+  await pane(0).locator('.split-at').fill('50');
+  await grab(0, 'split');
+  // Checked against the definitions: flip = B; difference = 8 |A - B| (RGB mean); split = A left of
+  // the line, B right of it.
+  const bad = await page.evaluate(([w, h]) => {
+    const { A, B, flip, diff, split } = window;
+    const errors = [];
+    if (flip.some((v, i) => v !== B[i])) errors.push('flip is not B');
+    for (let i = 0; i < A.length; i += 4) {
+      const d = (Math.abs(A[i] - B[i]) + Math.abs(A[i + 1] - B[i + 1]) + Math.abs(A[i + 2] - B[i + 2])) / 3;
+      if (diff[i] !== Math.min(255, Math.round(d * 8))) { errors.push(`difference at ${i / 4}`); break; }
+    }
+    const at = Math.round(w / 2);
+    for (let y = 0; y < h; y += 7) {
+      for (const x of [0, at - 1, at + 1, w - 1]) {
+        const i = (y * w + x) * 4;
+        const want = x < at ? A : B;
+        if (split[i] !== want[i]) { errors.push(`split at ${x},${y}`); break; }
+      }
+    }
+    if (A.every((v, i) => v === B[i])) errors.push('A and B are the same picture; the test shows nothing');
+    return errors;
+  }, [w, h]);
+  assert.deepEqual(bad, []);
+  await page.screenshot({ path: join(OUT, 'board-split.png') });
+  await pane(0).locator('input[value=result]').check();
+});
+
+test('the table under the board is what Save metrics writes', async () => {
+  const table = await page.locator('#summary-table tr').evaluateAll((rows) => rows.map((r) => [...r.children].map((c) => c.textContent).join(',')));
+  const [d] = await Promise.all([page.waitForEvent('download'), page.locator('#save-csv').click()]);
+  const path = join(OUT, d.suggestedFilename());
+  await d.saveAs(path);
+  const csv = readFileSync(path, 'utf8').trim().split('\n');
+  assert.deepEqual(table, csv);
+  assert.ok(csv[0].includes('threshold') && csv.length === 3, csv.join('\n'));
 });
 
 test('on a phone-sized window nothing runs off the side', async () => {
