@@ -31,6 +31,19 @@ function verdict(m, report) {
   return 'The removed part looks like noise.';
 }
 
+// Progress in plain words, with the time left once it can be told (after 3 s and 5%).
+function progressLine(bar, stage) {
+  const started = performance.now();
+  const words = { 'filtering groups': 'cleaning groups of similar patches', 'preparing': 'measuring the noise' };
+  return (f, s) => {
+    bar.value = f;
+    const elapsed = (performance.now() - started) / 1000;
+    const left = f > 0.05 && elapsed > 3 ? elapsed * (1 - f) / f : null;
+    const when = left === null ? '' : left < 60 ? `, about ${Math.ceil(left)} s left` : `, about ${Math.ceil(left / 60)} min left`;
+    stage.textContent = `${s.replace(/filtering groups|preparing/g, (m) => words[m])}${when}`;
+  };
+}
+
 const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
 const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 
@@ -156,7 +169,7 @@ export class Pane {
     const stage = this.q('.stage');
     bar.value = 0;
     stage.textContent = 'starting';
-    const show = (f, s) => { bar.value = f; stage.textContent = s; };
+    const show = progressLine(bar, stage);
     const settings = JSON.stringify(this.settings);
     const { file, unit } = src;
     this.run = runImage(src.bytes.slice(), settings, this.settings.method, show);
@@ -407,7 +420,7 @@ export class Pane {
     const bar = this.q('.bar');
     this.error('');
     this.busy(true);
-    this.run = runWholeFile(src.file, units, settings, this.settings.method, (f, s) => { bar.value = f; stage.textContent = s; },
+    this.run = runWholeFile(src.file, units, settings, this.settings.method, progressLine(bar, stage),
       (k) => (same(this.results.get(k)) ? this.results.get(k) : null),
       (k, r) => {
         r.settings = structuredClone(this.settings);
