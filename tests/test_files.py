@@ -258,3 +258,20 @@ def test_broken_files_exit_2_with_one_sentence_and_no_output(tmp_path, make, nam
     assert len(r.stderr.strip().splitlines()) == 1 and str(src) in r.stderr
     assert "panicked" not in r.stderr
     assert not out.exists()
+
+
+def test_metrics_of_a_float_stack_match_scikit_image_page_by_page(tmp_path, patchgraph):
+    # Each file is scaled by its own range inside; the comparison must happen in the clean one's
+    # units. Reference: skimage.metrics.peak_signal_noise_ratio with the clean file's working range.
+    from skimage.metrics import peak_signal_noise_ratio
+    clean = np.stack([scene(seed=20 + k) for k in range(3)]).astype(np.float32) * 7.5
+    noisy = (clean + np.random.default_rng(20).normal(0, 0.4, clean.shape)).astype(np.float32)
+    a, b = tmp_path / "clean.tif", tmp_path / "noisy.tif"
+    tifffile.imwrite(a, clean, photometric="minisblack", metadata=None)
+    tifffile.imwrite(b, noisy, photometric="minisblack", metadata=None)
+    q = patchgraph("metrics", a, b)
+    scale = patchgraph("inspect", a)["file"]["map"]["scale"]
+    assert len(q["units"]) == 3
+    for k in range(3):
+        want = peak_signal_noise_ratio(clean[k].astype(float), noisy[k].astype(float), data_range=65535 * scale)
+        assert abs(q["units"][k]["psnr"] - want) < 0.01, (k, q["units"][k]["psnr"], want)

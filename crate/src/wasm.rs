@@ -312,9 +312,10 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.
 #[wasm_bindgen]
 pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<String, JsError> {
-    let a = decode(clean, max_megapixels)?;
-    let b = decode(test, max_megapixels)?;
-    let q = metrics::compare(&a, &b).map_err(js_err)?;
+    let a = decode_file(clean, max_megapixels)?;
+    let b = decode_file(test, max_megapixels)?;
+    // The result in the reference's value map (float files are each scaled by their own range).
+    let q = metrics::compare(&a.unit(0).map_err(js_err)?, &b.unit_in(0, a.unit_map(0)).map_err(js_err)?).map_err(js_err)?;
     serde_json::to_string(&q).map_err(|e| JsError::new(&e.to_string()))
 }
 

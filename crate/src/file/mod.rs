@@ -276,6 +276,18 @@ impl Document {
             _ => page.image.clone(),
         })
     }
+    /// Unit `k` in the working grey levels of another map (of the unit it is compared with), so
+    /// that two files of float data, each scaled by its own range, compare value for value.
+    pub fn unit_in(&self, k: usize, map: ValueMap) -> Result<Image> {
+        let own = self.unit_map(k);
+        let mut img = self.unit(k)?;
+        if own != map {
+            for p in &mut img.channels {
+                p.data.iter_mut().for_each(|v| *v = map.to_working(own.to_stored(*v)));
+            }
+        }
+        Ok(img)
+    }
     /// Replaces unit `k`'s colour planes with a result of the same size.
     pub fn set_unit(&mut self, k: usize, img: Image) -> Result<()> {
         let per = self.per_page();

@@ -319,9 +319,32 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
 }
 
 pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
-    let (a, _) = read_image(clean, &DecodeLimits::default())?;
-    let (b, _) = read_image(test, &DecodeLimits::default())?;
-    let q = metrics::compare(&a, &b).map_err(|e| Failure::about(test, e))?;
+    let a = read_document(clean, &DecodeLimits::default())?;
+    let b = read_document(test, &DecodeLimits::default())?;
+    if a.units() != b.units() {
+        return Err(Failure::user(format!("{}: {} images, the clean file has {}", test.display(), b.units(), a.units())));
+    }
+    // Every image of a stack, each in the clean image's value map.
+    let mut all = Vec::with_capacity(a.units());
+    for k in 0..a.units() {
+        let (x, y) = (a.unit(k), b.unit_in(k, a.unit_map(k)));
+        let (x, y) = (x.map_err(|e| Failure::about(clean, e))?, y.map_err(|e| Failure::about(test, e))?);
+        all.push(metrics::compare(&x, &y).map_err(|e| Failure::about(test, e))?);
+    }
+    let q = all[0].clone();
+    if a.units() > 1 {
+        let mean = |f: &dyn Fn(&metrics::Quality) -> f64| all.iter().map(f).sum::<f64>() / all.len() as f64;
+        let units: Vec<_> = all.iter().enumerate().map(|(k, q)| json!({"image": a.unit_label(k), "psnr": q.psnr, "ssim": q.ssim})).collect();
+        if json_out {
+            outln!("{}", json!({"psnr": mean(&|q| q.psnr), "ssim": mean(&|q| q.ssim), "data_range": q.data_range, "units": units}));
+        } else {
+            outln!("mean over {} images: PSNR {:.3} dB, SSIM {:.4}", all.len(), mean(&|q| q.psnr), mean(&|q| q.ssim));
+            for (k, q) in all.iter().enumerate() {
+                outln!("  {}: PSNR {:.3} dB, SSIM {:.4}", a.unit_label(k), q.psnr, q.ssim);
+            }
+        }
+        return Ok(());
+    }
     if json_out {
         outln!("{}", serde_json::to_string(&q).map_err(|e| Failure { code: 1, message: e.to_string() })?);
     } else {
