@@ -333,8 +333,8 @@ pub fn group_at(input: &[u8], settings_json: &str, x: u32, y: u32, max_megapixel
 /// reads back to the same working image as inside the whole file.
 #[wasm_bindgen(js_name = unitFile)]
 pub fn unit_file(input: &[u8], k: u32, max_megapixels: u32) -> Result<Uint8Array, JsError> {
-    let doc = decode_file(input, max_megapixels)?;
-    let one = doc.unit_document(k as usize).map_err(js_err)?;
+    let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
+    let one = file::decode_unit(input, &limits, k as usize).map_err(js_err)?;
     let out = file::encode(&one, Format::Tiff, None).map_err(js_err)?;
     Ok(Uint8Array::from(out.as_slice()))
 }

@@ -141,6 +141,10 @@ fn a_unit_written_alone_reads_back_to_the_same_working_image() {
             let back = file::decode(&alone, &DecodeLimits::default()).unwrap();
             assert_eq!(back.unit(0).unwrap(), doc.unit(k).unwrap(), "{t:?} {layout:?} unit {k}");
             assert_eq!(back.unit_map(0), doc.unit_map(k));
+            // Read from the whole file's bytes without decoding the other pages: the same image.
+            let whole = file::encode(&doc, Format::Tiff, None).unwrap();
+            let one = file::decode_unit(&whole, &DecodeLimits::default(), k).unwrap();
+            assert_eq!(one.unit(0).unwrap(), doc.unit(k).unwrap(), "{t:?} {layout:?} unit {k} from the whole file");
         }
     }
 }

@@ -431,6 +431,16 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     }
 }
 
+/// Image `k` of a file alone (a page, or one band of it) as a one-image document: for TIFF only
+/// its page is decoded, so memory stays that of one page whatever the stack's length.
+pub fn decode_unit(bytes: &[u8], limits: &DecodeLimits, k: usize) -> Result<Document> {
+    if Format::sniff(bytes) == Some(Format::Tiff) {
+        let per = tiff::bands_per_page(bytes, limits)?;
+        return tiff::decode_page(bytes, limits, k / per)?.unit_document(k % per);
+    }
+    decode(bytes, limits)?.unit_document(k)
+}
+
 /// What a written file records about its making: the program, its version, and the settings.
 #[derive(Clone, Debug)]
 pub struct Provenance {

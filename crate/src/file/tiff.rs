@@ -3,7 +3,7 @@
 //! description and ICC profile kept. Colour models the crate leaves undecoded (palette, YCbCr,
 //! CMYK, bilevel) fall back to the general decoder for single-page files.
 
-use super::samples::{self, BlankRule, Layout, SampleType, Samples};
+use super::samples::{self, BlankRule, Layout, SampleType, Samples, WorkingPage};
 use super::{Compression, DecodeLimits, Document, Format, Metadata, Provenance, Resolution, ResolutionUnit};
 use crate::error::{Error, Result};
 use std::io::{Cursor, Seek, Write};
@@ -171,24 +171,49 @@ fn read_metadata(dec: &mut Decoder<Cursor<&[u8]>>, bytes: &[u8]) -> Metadata {
     m
 }
 
-pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
+fn open<'a>(bytes: &'a [u8], limits: &DecodeLimits) -> Result<(Decoder<Cursor<&'a [u8]>>, Metadata)> {
     let mut tl = Limits::default();
     tl.decoding_buffer_size = (limits.max_alloc_mib as usize).saturating_mul(1024 * 1024);
     let mut dec = Decoder::new(Cursor::new(bytes)).map_err(|e| tiff_err(1, e))?.with_limits(tl);
     let meta = read_metadata(&mut dec, bytes);
-    let mut raw: Vec<Samples> = Vec::new();
+    Ok((dec, meta))
+}
+
+/// The current page, checked and converted to working values at once (pages are never held as
+/// stored samples all together). `pages` counts this one, for the memory cap.
+fn read_page(dec: &mut Decoder<Cursor<&[u8]>>, file_len: usize, head: &PageHead, page: usize, limits: &DecodeLimits) -> Result<WorkingPage> {
+    limits.check(head.width, head.height, page, head.layout.samples_per_pixel())?;
+    check_chunks(dec, file_len, head, page)?;
+    let mut result = DecodingResult::U8(Vec::new());
+    let layout = dec.read_image_to_buffer(&mut result).map_err(|e| tiff_err(page, e))?;
+    let n = head.layout.samples_per_pixel();
+    let mut s = to_samples(result, page)?;
+    if layout.planes > 1 {
+        if s.len() != head.width * head.height * n {
+            return Err(Error::TooMuchMemory { limit_mib: limits.max_alloc_mib });
+        }
+        s = interleave(s, n);
+    }
+    samples::to_working(&s, head.width, head.height, head.layout, BlankRule { marker: None })
+}
+
+fn unsupported_model(page: usize) -> Error {
+    Error::UnsupportedPixelType(format!("TIFF page {page}'s colour model (palette, YCbCr, CMYK or under 8 bits) in a multi-page file"))
+}
+
+pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
+    let (mut dec, meta) = open(bytes, limits)?;
+    let mut pages: Vec<WorkingPage> = Vec::new();
     let mut first: Option<PageHead> = None;
     loop {
-        let page = raw.len() + 1;
+        let page = pages.len() + 1;
         let Some(head) = page_head(&mut dec, page)? else {
             if page == 1 && !dec.more_images() {
                 let mut doc = super::raster::decode(bytes, Format::Tiff, limits)?;
                 doc.meta = meta;
                 return Ok(doc);
             }
-            return Err(Error::UnsupportedPixelType(format!(
-                "TIFF page {page}'s colour model (palette, YCbCr, CMYK or under 8 bits) in a multi-page file"
-            )));
+            return Err(unsupported_model(page));
         };
         if let Some(f) = &first {
             if (f.width, f.height, f.layout, f.sample) != (head.width, head.height, head.layout, head.sample) {
@@ -198,19 +223,7 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
                 )));
             }
         }
-        limits.check(head.width, head.height, page, head.layout.samples_per_pixel())?;
-        check_chunks(&mut dec, bytes.len(), &head, page)?;
-        let mut result = DecodingResult::U8(Vec::new());
-        let layout = dec.read_image_to_buffer(&mut result).map_err(|e| tiff_err(page, e))?;
-        let n = head.layout.samples_per_pixel();
-        let mut s = to_samples(result, page)?;
-        if layout.planes > 1 {
-            if s.len() != head.width * head.height * n {
-                return Err(Error::TooMuchMemory { limit_mib: limits.max_alloc_mib });
-            }
-            s = interleave(s, n);
-        }
-        raw.push(s);
+        pages.push(read_page(&mut dec, bytes.len(), &head, page, limits)?);
         first.get_or_insert(head);
         if !dec.more_images() {
             break;
@@ -218,12 +231,33 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
         dec.next_image().map_err(|e| tiff_err(page + 1, e))?;
     }
     let head = first.ok_or(Error::ZeroSize)?;
-    let rule = BlankRule { marker: None };
-    let pages = raw
-        .into_iter()
-        .map(|s| samples::to_working(&s, head.width, head.height, head.layout, rule))
-        .collect::<Result<Vec<_>>>()?;
     Ok(Document { format: Format::Tiff, sample: head.sample, layout: head.layout, pages, meta })
+}
+
+/// One page alone (0-based), without decoding the others: what the page's workers get for the
+/// image shown. The first page's metadata comes with it.
+pub fn decode_page(bytes: &[u8], limits: &DecodeLimits, index: usize) -> Result<Document> {
+    let (mut dec, meta) = open(bytes, limits)?;
+    if index > 0 {
+        dec.seek_to_image(index).map_err(|e| tiff_err(index + 1, e))?;
+    }
+    let Some(head) = page_head(&mut dec, index + 1)? else {
+        if index == 0 {
+            return decode(bytes, limits);
+        }
+        return Err(unsupported_model(index + 1));
+    };
+    let page = read_page(&mut dec, bytes.len(), &head, 1, limits)?;
+    Ok(Document { format: Format::Tiff, sample: head.sample, layout: head.layout, pages: vec![page], meta })
+}
+
+/// Independent channels per page, read from the first page's header alone.
+pub fn bands_per_page(bytes: &[u8], limits: &DecodeLimits) -> Result<usize> {
+    let (mut dec, _) = open(bytes, limits)?;
+    Ok(match page_head(&mut dec, 1)?.map(|h| h.layout) {
+        Some(Layout::Bands(n)) => n,
+        _ => 1,
+    })
 }
 
 /// The per-sample facts of a stored type.
