@@ -306,13 +306,13 @@ impl<'a> Stage<'a> {
         Ok(acc)
     }
 
-    /// 2-D DCT of every patch of the group in one plane, patch i at [i k^2, (i+1) k^2).
-    fn patch_coeffs(&self, plane: &Plane, group: &Group) -> Vec<f32> {
+    /// 2-D DCT of each patch at `positions` in one plane, patch i at [i k^2, (i+1) k^2).
+    fn patch_coeffs_of(&self, plane: &Plane, positions: &[(usize, usize)]) -> Vec<f32> {
         let k = self.prof.patch;
         let kk = k * k;
         let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
-        let mut out = vec![0.0f32; group.len() * kk];
-        for (i, &(x, y)) in group.positions.iter().enumerate() {
+        let mut out = vec![0.0f32; positions.len() * kk];
+        for (i, &(x, y)) in positions.iter().enumerate() {
             for r in 0..k {
                 buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
             }
@@ -322,29 +322,32 @@ impl<'a> Stage<'a> {
     }
 
     /// How many of the group's patches (best first) to keep: the group size, and beyond it only
-    /// candidates the noise cannot tell from the reference ([`FLAT_GROWTH`]).
-    fn keep_count(&self, src: &[f32], n: usize, noisy: bool) -> usize {
+    /// candidates the noise cannot tell from the reference ([`FLAT_GROWTH`]). `plane` is the one
+    /// the group graph is built from; candidates are transformed one at a time, only while they pass.
+    fn keep_count(&self, plane: &Plane, group: &Group, noisy: bool) -> usize {
         let base = self.group_size();
+        let n = group.len();
         if n <= base || self.prof.group_graph != GroupGraph::NoiseTested {
             return n.min(base);
         }
-        let kk = self.prof.patch * self.prof.patch;
         let (_, expected) = tested_expectation(self.lf_var, self.lf.len(), noisy);
-        let reference = &src[..kk];
-        (base..n).find(|&i| lf_distance(reference, &src[i * kk..(i + 1) * kk], &self.lf) > expected).unwrap_or(n)
+        let reference = self.patch_coeffs_of(plane, &group.positions[..1]);
+        (base..n)
+            .find(|&i| lf_distance(&reference, &self.patch_coeffs_of(plane, &group.positions[i..=i]), &self.lf) > expected)
+            .unwrap_or(n)
     }
 
     fn filter_group(&self, group: &Group, noisy: &[Plane], basic: Option<&[Plane]>, acc: &mut Accumulator) {
         let k = self.prof.patch;
         let kk = k * k;
         let sigma2 = self.sigma * self.sigma;
-        let mut noisy_c: Vec<Vec<f32>> = noisy.iter().map(|p| self.patch_coeffs(p, group)).collect();
-        let mut basic_c: Option<Vec<Vec<f32>>> = basic.map(|b| b.iter().map(|p| self.patch_coeffs(p, group)).collect());
-        let n = match &basic_c {
-            Some(b) => self.keep_count(&b[0], group.len(), false),
-            None => self.keep_count(&noisy_c[0], group.len(), true),
+        let n = match basic {
+            Some(b) => self.keep_count(&b[0], group, false),
+            None => self.keep_count(&noisy[0], group, true),
         };
-        noisy_c.iter_mut().chain(basic_c.iter_mut().flatten()).for_each(|c| c.truncate(n * kk));
+        let kept = &group.positions[..n];
+        let noisy_c: Vec<Vec<f32>> = noisy.iter().map(|p| self.patch_coeffs_of(p, kept)).collect();
+        let basic_c: Option<Vec<Vec<f32>>> = basic.map(|b| b.iter().map(|p| self.patch_coeffs_of(p, kept)).collect());
         // The group graph comes from the cleanest luminance available.
         let graph_src = match &basic_c {
             Some(b) => &b[0],
@@ -536,7 +539,7 @@ pub fn group_at(
     let mut g = groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))?;
     // The patches stage 1 keeps, as a run decides (white noise of `sigma` assumed here).
     let stage = Stage::new(std::slice::from_ref(luma), None, 0, luma.height, sigma, max_value, s, None)?;
-    let n = stage.keep_count(&stage.patch_coeffs(luma, &g), g.len(), true);
+    let n = stage.keep_count(luma, &g, true);
     g.positions.truncate(n);
     g.similarity.truncate(n);
     Ok(g)
