@@ -34,13 +34,14 @@ function verdict(m, report) {
 // Progress in plain words, with the time left once it can be told (after 3 s and 5%).
 function progressLine(bar, stage) {
   const started = performance.now();
-  const words = { 'filtering groups': 'cleaning groups of similar patches', 'preparing': 'measuring the noise' };
+  // The methods' own last word is "done", but the result still has to be put together.
+  const words = { 'filtering groups': 'cleaning groups of similar patches', preparing: 'measuring the noise', done: 'finishing' };
   return (f, s) => {
     bar.value = f;
     const elapsed = (performance.now() - started) / 1000;
     const left = f > 0.05 && elapsed > 3 ? elapsed * (1 - f) / f : null;
     const when = left === null ? '' : left < 60 ? `, about ${Math.ceil(left)} s left` : `, about ${Math.ceil(left / 60)} min left`;
-    stage.textContent = `${s.replace(/filtering groups|preparing/g, (m) => words[m])}${when}`;
+    stage.textContent = `${s.replace(/filtering groups|preparing|done$/g, (m) => words[m])}${when}`;
   };
 }
 
@@ -171,12 +172,14 @@ export class Pane {
     stage.textContent = 'starting';
     const show = progressLine(bar, stage);
     const settings = JSON.stringify(this.settings);
+    // The result belongs to the settings it started with, whatever is edited while it runs.
+    const made = structuredClone(this.settings);
     const { file, unit } = src;
     this.run = runImage(src.bytes.slice(), settings, this.settings.method, show);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
-      r.settings = structuredClone(this.settings);
+      r.settings = made;
       r.quality = null;
       this.results.set(unit, r);
       // The slice control may have moved on while this ran: the result waits for its image.
@@ -415,6 +418,7 @@ export class Pane {
     const base = (src.name || 'image').replace(/\.[^.]+$/, '');
     const units = src.fileInfo.units;
     const settings = JSON.stringify(this.settings);
+    const made = structuredClone(this.settings);
     const same = (r) => r && JSON.stringify(r.settings) === settings;
     const stage = this.q('.stage');
     const bar = this.q('.bar');
@@ -423,7 +427,7 @@ export class Pane {
     this.run = runWholeFile(src.file, units, settings, this.settings.method, progressLine(bar, stage),
       (k) => (same(this.results.get(k)) ? this.results.get(k) : null),
       (k, r) => {
-        r.settings = structuredClone(this.settings);
+        r.settings = made;
         // Images not on screen keep only what saving needs.
         this.results.set(k, k === src.unit ? r : { file: r.file, settings: r.settings, report: r.report });
       });

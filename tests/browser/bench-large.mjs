@@ -31,7 +31,7 @@ for (const [name, c] of Object.entries(record)) {
   const pane = page.locator('.pane').nth(0);
   await pane.locator('select[name=method]').selectOption('patch-graph');
   await pane.locator('.run').click();
-  await pane.locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 3600000 });
+  await pane.locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 3600000 });
   const stage = await pane.locator('.stage').textContent();
   if (!/done/.test(stage)) throw new Error(`${name}: ${stage}: ${await pane.locator('.error').textContent()}`);
   const d = await pane.evaluate((el) => ({ ...el.dataset }));

@@ -20,7 +20,7 @@ const pane = (i) => page.locator('.pane').nth(i);
 
 async function run(i) {
   await pane(i).locator('.run').click();
-  await pane(i).locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+  await pane(i).locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
   assert.match(await pane(i).locator('.stage').textContent(), /done/);
 }
 

@@ -47,7 +47,7 @@ test('a TIFF z-stack: one slice control for all settings, every page saved', asy
   assert.match(await page.locator('#slice-label').textContent(), /page 1 of 3/);
   assert.match(await page.locator('#source-info').textContent(), /16-bit unsigned TIFF/);
   await pane().locator('.run').click();
-  await pane().locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+  await pane().locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
   assert.match(await pane().locator('.stage').textContent(), /done/);
   // Another slice: the pane has no result for it yet, and says nothing stale.
   await page.locator('#slice').fill('2');
@@ -78,7 +78,7 @@ test('a float FITS cube with blank pixels saves as FITS, blanks where they were'
   await page.waitForFunction(() => /2 images/.test(document.getElementById('source-info').textContent));
   assert.match(await page.locator('#source-info').textContent(), /32-bit float FITS.*100 blank pixels/);
   await pane().locator('.run').click();
-  await pane().locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+  await pane().locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
   const { path, suggested } = await save('cube-out.fits');
   assert.match(suggested, /cube-in-denoised-A\.fits$/);
   const verdict = py(`

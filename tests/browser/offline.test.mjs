@@ -46,7 +46,7 @@ test('the file alone opens with its sample, takes a dropped image, denoises and 
   await page.waitForFunction(() => /dropped-chart\.png: 256/.test(document.getElementById('source-info').textContent));
   const pane = page.locator('.pane').nth(0);
   await pane.locator('.run').click();
-  await pane.locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 120000 });
+  await pane.locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 120000 });
   assert.match(await pane.locator('.stage').textContent(), /done/);
   const [d] = await Promise.all([page.waitForEvent('download'), pane.locator('.save-png').click()]);
   const saved = join(OUT, `offline-${d.suggestedFilename()}`);

@@ -31,7 +31,7 @@ const stage = (pane) => page.locator('.pane').nth(pane).locator('.stage');
 async function runPane(i, click = true) {
   if (click) await page.locator('.pane').nth(i).locator('.run').click();
   try {
-    await stage(i).filter({ hasText: /done|failed/ }).waitFor({ timeout: 60000 });
+    await stage(i).filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
   } catch (e) {
     const texts = await page.locator('.pane .stage').allTextContents();
     const errs = await page.locator('.pane .error').allTextContents();

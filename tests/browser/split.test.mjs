@@ -31,7 +31,7 @@ async function runWith(query) {
   const pane = page.locator('.pane').nth(0);
   await pane.locator('select[name=method]').selectOption('patch-graph');
   await pane.locator('.run').click();
-  await pane.locator('.stage').filter({ hasText: /done|failed/ }).waitFor({ timeout: 120000 });
+  await pane.locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 120000 });
   const stage = await pane.locator('.stage').textContent();
   assert.match(stage, /done/, await pane.locator('.error').textContent());
   const save = async (sel, name) => {
