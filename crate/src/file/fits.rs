@@ -27,7 +27,7 @@ const U32_ZERO: f64 = 2147483648.0;
 pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     let fd = fitsio_pure::hdu::parse_fits(bytes).map_err(fits_err)?;
     let hdu = fd.primary();
-    let HduInfo::Primary { bitpix, naxes } = &hdu.info else {
+    let HduInfo::Primary { naxes, .. } = &hdu.info else {
         return Err(Error::Decode("FITS: the primary HDU is not an image".into()));
     };
     if naxes.len() < 2 || naxes.iter().product::<usize>() == 0 {
@@ -83,7 +83,6 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
         fits_extensions: bytes[primary_end..].to_vec(),
         ..Metadata::default()
     };
-    let _ = bitpix;
     Ok(Document { format: Format::Fits, sample, layout: Layout::Grey, pages, meta })
 }
 

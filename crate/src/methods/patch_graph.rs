@@ -236,8 +236,6 @@ impl<'a> Stage<'a> {
         let noise: Vec<CoeffNoise> =
             (0..noisy.len()).map(|c| CoeffNoise::new(k, sigma, prof.lambda, spectra.map(|sp| &sp[c]))).collect();
         let lf = low_freq_indices(k);
-        let kk = (k * k) as f64;
-        let _ = kk;
         let (match_var, lf_var) = match spectra {
             Some(sp) => (sp[0].pixel_variance(), lf.iter().map(|&i| sp[0].variances[i]).sum::<f64>()),
             None => (sigma * sigma, sigma * sigma * lf.len() as f64),
