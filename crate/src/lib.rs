@@ -6,6 +6,7 @@
 
 pub mod color;
 pub mod error;
+pub mod error_estimate;
 pub mod file;
 pub mod graph;
 pub mod methods;

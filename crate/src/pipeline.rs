@@ -4,6 +4,7 @@
 use crate::color;
 use std::borrow::Cow;
 use crate::error::Result;
+use crate::error_estimate::{self, ErrorEstimate, PixelVariance, Probe};
 use crate::methods::{self, MethodOutput};
 use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
@@ -35,6 +36,9 @@ pub struct RunReport {
     /// Per input colour channel, in the working domain.
     pub residual: Vec<ResidualStats>,
     pub work_units: usize,
+    /// The result's error estimated without a reference, when asked for ([`denoise_estimated`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub error_estimate: Option<ErrorEstimate>,
 }
 
 pub struct RunOutput {
@@ -273,23 +277,108 @@ pub fn method_planes(p: &Prepared) -> Vec<Plane> {
     opponent_if_colour(&p.working)
 }
 
+/// The settings' method on method planes, with the prepared sigma, range and noise spectra.
+pub fn run_method(planes_in: &[Plane], prepared: &Prepared, settings: &Settings, progress: &dyn Progress) -> Result<MethodOutput> {
+    let (sigma, range) = (prepared.sigma, prepared.range);
+    match settings.method {
+        Method::PixelGraph => methods::pixel_graph::denoise(planes_in, sigma, range, &settings.pixel_graph, progress),
+        Method::PatchGraph => {
+            let spectra = prepared.spectra();
+            methods::patch_graph::denoise(planes_in, sigma, range, &settings.patch_graph, spectra.as_deref(), progress)
+        }
+    }
+}
+
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
     let prepared = prepare(img, settings)?;
     let planes_in = method_planes(&prepared);
     progress.report(0.02, "preparing");
     let sub = SubProgress { parent: progress, start: 0.05, span: 0.9 };
-    let (sigma, range) = (prepared.sigma, prepared.range);
-    let output = match settings.method {
-        Method::PixelGraph => methods::pixel_graph::denoise(&planes_in, sigma, range, &settings.pixel_graph, &sub)?,
-        Method::PatchGraph => {
-            let spectra = prepared.spectra();
-            methods::patch_graph::denoise(&planes_in, sigma, range, &settings.patch_graph, spectra.as_deref(), &sub)?
-        }
-    };
+    let output = run_method(&planes_in, &prepared, settings, &sub)?;
     drop(planes_in);
     let out = finish(img, settings, prepared, output);
     progress.report(1.0, "done");
     Ok(out)
+}
+
+/// A run followed by a second pass on the input plus a small probe, with the noise model of the
+/// first kept, and the result's error estimated from the two ([`error_estimate`]). The first pass
+/// takes the first half of the progress. Where the estimate does not hold (correlated noise), the
+/// second pass is skipped and the report says why.
+pub fn denoise_estimated(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
+    let prepared = prepare(img, settings)?;
+    let top = f64::from(img.max_value());
+    let why_not = error_estimate::not_applicable(&prepared);
+    let span = if why_not.is_some() { 0.9 } else { 0.45 };
+    let planes_in = method_planes(&prepared);
+    progress.report(0.02, "preparing");
+    let output = run_method(&planes_in, &prepared, settings, &SubProgress { parent: progress, start: 0.05, span })?;
+    drop(planes_in);
+    let estimate = match why_not {
+        Some(note) => ErrorEstimate::none(note, top),
+        None => {
+            let probe = Probe::for_run(&prepared);
+            let probe_planes = prepared.method_planes_of(&probe.perturbed(img));
+            let sub = SubProgress { parent: progress, start: 0.5, span };
+            let second = run_method(&probe_planes, &prepared, settings, &ProbeStage(&sub))?;
+            drop(probe_planes);
+            let probed = img.with_channels(prepared.image_planes(second.planes));
+            let result = img.with_channels(prepared.image_planes(output.planes.clone()));
+            let e = error_estimate::estimate(img, &result, &probed, &probe, &PixelVariance::of(&prepared, top), prepared.clip.is_some());
+            if prepared.estimated { e.for_estimated_level() } else { e }
+        }
+    };
+    let mut out = finish(img, settings, prepared, output);
+    out.report.error_estimate = Some(estimate);
+    progress.report(1.0, "done");
+    Ok(out)
+}
+
+/// Names the second pass's stages ("error estimate: matching").
+struct ProbeStage<'a>(&'a dyn Progress);
+
+impl Progress for ProbeStage<'_> {
+    fn report(&self, fraction: f32, stage: &str) {
+        self.0.report(fraction, &format!("error estimate: {stage}"));
+    }
+    fn is_cancelled(&self) -> bool {
+        self.0.is_cancelled()
+    }
+}
+
+/// Colour planes from a method's planes (opponent back to RGB; grey planes as they are).
+fn colour_back(planes: Vec<Plane>) -> Vec<Plane> {
+    if planes.len() == 3 { color::from_opponent(&planes) } else { planes }
+}
+
+/// Working-domain channel planes back to the image's grey levels: the stabiliser's inverse, then
+/// the correction for clipped noise.
+fn model_back(planes: Vec<Plane>, stabilisers: Option<&[Stabiliser]>, clip: Option<&[ClipInverse]>) -> Vec<Plane> {
+    match (stabilisers, clip) {
+        (None, None) => planes,
+        (None, Some(ci)) => planes.iter().zip(ci).map(|(p, c)| map_plane(p, |d| c.apply(d))).collect(),
+        (Some(st), None) => planes.iter().zip(st).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
+        (Some(st), Some(ci)) => {
+            planes.iter().zip(st).zip(ci).map(|((p, n), c)| map_plane(p, |d| c.apply(n.inverse(d)))).collect()
+        }
+    }
+}
+
+impl Prepared<'_> {
+    /// The method planes of another image of the same size under this model, not refitted: what
+    /// the error estimate's second pass denoises.
+    pub fn method_planes_of(&self, img: &Image) -> Vec<Plane> {
+        let working: Vec<Plane> = match &self.stabilisers {
+            None => img.channels.clone(),
+            Some(st) => img.channels.iter().zip(st).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect(),
+        };
+        opponent_if_colour(&working)
+    }
+
+    /// A method's planes back to the image's channels in its grey levels, as [`finish`] does.
+    pub fn image_planes(&self, planes: Vec<Plane>) -> Vec<Plane> {
+        model_back(colour_back(planes), self.stabilisers.as_deref(), self.clip.as_deref())
+    }
 }
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
@@ -297,24 +386,11 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
     let Prepared { stabilisers, clip, working, sigma, estimated, estimates, noise, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
-    let planes = if planes.len() == 3 {
-        let rgb = color::from_opponent(&planes);
-        drop(planes);
-        rgb
-    } else {
-        planes
-    };
+    let planes = colour_back(planes);
     let residual = working.iter().zip(&planes).map(|(n, d)| metrics::residual_stats(n, d, sigma)).collect();
     drop(working);
     let stabilised = stabilisers.is_some();
-    let out_planes = match (&stabilisers, &clip) {
-        (None, None) => planes,
-        (None, Some(ci)) => planes.iter().zip(ci).map(|(p, c)| map_plane(p, |d| c.apply(d))).collect(),
-        (Some(st), None) => planes.iter().zip(st).map(|(p, n)| map_plane(p, |d| n.inverse(d))).collect(),
-        (Some(st), Some(ci)) => {
-            planes.iter().zip(st).zip(ci).map(|((p, n), c)| map_plane(p, |d| c.apply(n.inverse(d)))).collect()
-        }
-    };
+    let out_planes = model_back(planes, stabilisers.as_deref(), clip.as_deref());
     RunOutput {
         image: img.with_channels(out_planes),
         report: RunReport {
@@ -327,6 +403,7 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
             noise_estimates: estimates,
             residual,
             work_units,
+            error_estimate: None,
         },
         cut_map,
     }

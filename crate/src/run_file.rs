@@ -56,7 +56,9 @@ impl Progress for UnitProgress<'_> {
     }
 }
 
-pub fn denoise_file(doc: &Document, settings: &Settings, progress: &dyn Progress) -> Result<FileRun> {
+/// With `estimate_error`, each unit's report carries its error estimate (one more pass per unit),
+/// in the file's own units.
+pub fn denoise_file(doc: &Document, settings: &Settings, estimate_error: bool, progress: &dyn Progress) -> Result<FileRun> {
     let n = doc.units();
     let mut out = doc.clone();
     let mut reports = Vec::with_capacity(n);
@@ -64,7 +66,12 @@ pub fn denoise_file(doc: &Document, settings: &Settings, progress: &dyn Progress
     for k in 0..n {
         let sub = UnitProgress { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
         let img = doc.unit(k)?;
-        let run = pipeline::denoise(&img, &in_working_units(settings, doc.unit_map(k)), &sub)?;
+        let map = doc.unit_map(k);
+        let working = in_working_units(settings, map);
+        let mut run = if estimate_error { pipeline::denoise_estimated(&img, &working, &sub)? } else { pipeline::denoise(&img, &working, &sub)? };
+        if let Some(e) = run.report.error_estimate.as_mut() {
+            e.in_units(map.scale);
+        }
         out.set_unit(k, run.image)?;
         reports.push(run.report);
         if k == 0 {

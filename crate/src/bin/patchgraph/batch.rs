@@ -96,7 +96,7 @@ fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progres
         .chain(file::FORMATS.iter().map(|f| f.format))
         .find(|f| doc.check_writable(*f).is_ok())
         .ok_or_else(|| Error::UnsupportedOutput("no output format here holds this file".into()))?;
-    let run = run_file::denoise_file(&doc, settings, progress)?;
+    let run = run_file::denoise_file(&doc, settings, false, progress)?;
     let provenance = Provenance::of(settings);
     let encoded = file::encode(&run.document, format, Some(&provenance))?;
     let sigma = run.reports.first().map_or(0.0, |r| r.sigma_used * doc.unit_map(0).scale);

@@ -5,6 +5,7 @@ use crate::{MethodArg, NoiseArg};
 use patchgraph::file::{self, DecodeLimits, Document, Format, Provenance};
 use patchgraph::planes::{BitDepth, Image};
 use patchgraph::settings::{AutoOr, Method, NoiseModel, Settings};
+use patchgraph::error_estimate::ErrorEstimate;
 use patchgraph::{metrics, pipeline, run_file, Error};
 use serde_json::json;
 use std::io::IsTerminal;
@@ -111,9 +112,26 @@ pub struct DenoiseArgs {
     /// Refuse pages larger than this many megapixels.
     #[arg(long, default_value_t = 64)]
     pub max_megapixels: u64,
+    /// Also estimate the result's error without a clean image (Stein's unbiased risk estimate,
+    /// one more pass): an estimated PSNR and its gain over the input, per image.
+    #[arg(long)]
+    pub estimate_error: bool,
     /// Print one JSON object on stdout instead of a text summary.
     #[arg(long)]
     pub json: bool,
+}
+
+/// One line on a result's estimated error, as the text summary prints it.
+pub fn estimate_line(e: &ErrorEstimate) -> String {
+    match (e.applies, e.psnr, e.gain_db) {
+        (false, ..) => format!("no error estimate: {}", e.note.as_deref().unwrap_or("it does not apply here")),
+        (true, Some(p), Some(g)) => format!(
+            "estimated PSNR {p:.2} dB (+/- {:.2}), {g:+.2} dB over the input{}",
+            e.psnr_spread.unwrap_or(0.0),
+            e.note.as_deref().map(|n| format!("; {n}")).unwrap_or_default()
+        ),
+        (true, ..) => "estimated error at or below zero: too small to tell from the noise".into(),
+    }
 }
 
 /// Reads and validates a settings file.
@@ -178,7 +196,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     doc.check_writable(format).map_err(|e| Failure::about(&a.output, e))?;
     let progress = TerminalProgress::new(!a.json && std::io::stderr().is_terminal());
     let start = Instant::now();
-    let run = run_file::denoise_file(&doc, &settings, &progress).map_err(|e| Failure::about(&a.input, e));
+    let run = run_file::denoise_file(&doc, &settings, a.estimate_error, &progress).map_err(|e| Failure::about(&a.input, e));
     progress.finish();
     let run = run?;
     let seconds = start.elapsed().as_secs_f64();
@@ -201,7 +219,8 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             .iter()
             .enumerate()
             .map(|(k, r)| json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(k, r),
-                                  "stabilised": r.stabilised, "residual": r.residual}))
+                                  "stabilised": r.stabilised, "residual": r.residual,
+                                  "error_estimate": r.error_estimate}))
             .collect();
         let first = doc.unit(0).map_err(|e| Failure::about(&a.input, e))?;
         let v = json!({
@@ -223,6 +242,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             "units": units,
             "noise_estimates": r.noise_estimates,
             "residual": r.residual,
+            "error_estimate": r.error_estimate,
             "work_units": r.work_units,
             "settings": settings,
         });
@@ -255,6 +275,9 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
                     "    channel {c}: residual std {:.2} ({:.2} x sigma), lag-1 correlation {:+.3}, edge correlation {:+.3}",
                     s.std, s.std_over_sigma, s.lag1_autocorrelation, s.edge_correlation
                 );
+            }
+            if let Some(e) = &r.error_estimate {
+                outln!("    {}", estimate_line(e));
             }
         }
         if summary.blank_pixels > 0 {
