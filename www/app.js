@@ -5,6 +5,7 @@ import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize }
 import { Pane } from './panes.js';
 import { runBatch, stopBatch } from './batch.js';
 import { showNoise, hideNoise } from './noiseview.js';
+import { wireSweep } from './sweep.js';
 
 const STORE = 'patchgraph.settings.v1';
 const names = ['A', 'B', 'C', 'D'];
@@ -231,7 +232,7 @@ function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
   const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
     'search_radius', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
-    'residual_edge_correlation', 'psnr', 'ssim', 'seconds'];
+    'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';
   return [['image', ...cols], ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))])];
@@ -241,7 +242,19 @@ function csv() {
   return `${tableRows().map((r) => r.join(',')).join('\n')}\n`;
 }
 
+app.estimating = () => $('estimate-errors').checked;
+
+// With two or more results estimated, the one of lowest estimated error is marked. The error,
+// not the PSNR, is compared: differences between settings hold even where the noise level is
+// estimated and the PSNR itself is not given.
+function markBest() {
+  const scored = app.panes.map((p) => [p, p.metricsRow()]).filter(([, m]) => m && m.estimated_mse !== null);
+  const best = scored.length >= 2 ? scored.reduce((a, b) => (b[1].estimated_mse < a[1].estimated_mse ? b : a))[0] : null;
+  for (const p of app.panes) p.q('.best-note').hidden = p !== best;
+}
+
 app.refreshTable = () => {
+  markBest();
   const rows = tableRows();
   const table = $('summary-table');
   table.hidden = rows.length < 2;
@@ -275,6 +288,7 @@ async function main() {
   wireInput();
   wireToolbar();
   wireBatch();
+  wireSweep(app);
   const started = await call('defaults');
   app.defaults = JSON.parse(started.settings);
   document.body.dataset.wasm = started.build;

@@ -1,6 +1,7 @@
 // One pane: a setting of its own, its run (progress, stop), its views and its metrics.
 import { call, Stopped } from './tasks.js';
 import { runImage, runWholeFile } from './wholefile.js';
+import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 
@@ -43,6 +44,17 @@ function progressLine(bar, stage) {
     const when = left === null ? '' : left < 60 ? `, about ${Math.ceil(left)} s left` : `, about ${Math.ceil(left / 60)} min left`;
     stage.textContent = `${s.replace(/filtering groups|preparing|done$/g, (m) => words[m])}${when}`;
   };
+}
+
+// The error estimate in words: the number with its spread and gain, and what it rests on.
+function estimateText(e) {
+  if (!e) return 'not estimated (tick "Estimate errors" above the board and run)';
+  if (!e.applies) return `not given: ${e.note}`;
+  const level = e.level_estimated && e.per_sigma_percent_db !== null
+    ? ` With the estimated sigma: if it is 1% too high, this is ${fmt(Math.abs(e.per_sigma_percent_db))} dB too high; comparisons between settings hold better.` : '';
+  const note = e.note ? ` Note: ${e.note}` : '';
+  if (e.psnr === null || e.psnr === undefined) return `no PSNR.${note}`;
+  return `${fmt(e.psnr)} dB ± ${fmt(e.psnr_spread)}, ${e.gain_db >= 0 ? '+' : ''}${fmt(e.gain_db)} dB over the input.${level}${note}`;
 }
 
 const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
@@ -175,7 +187,8 @@ export class Pane {
     // The result belongs to the settings it started with, whatever is edited while it runs.
     const made = structuredClone(this.settings);
     const { file, unit } = src;
-    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show);
+    const estimate = this.app.estimating();
+    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show, estimate);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
@@ -201,6 +214,7 @@ export class Pane {
       // Views of other settings that compare with this one change too.
       for (const p of this.app.panes) if (p !== this) p.paint();
       await this.measure();
+      if (r.methodPlanes) await this.estimate(r, src.bytes, settings, bar, stage);
     } catch (e) {
       stage.textContent = e instanceof Stopped ? 'stopped' : 'failed';
       if (!(e instanceof Stopped)) this.error(e.message);
@@ -212,6 +226,26 @@ export class Pane {
   }
 
   stop() { if (this.run) this.run.stop(); }
+
+  // The error estimate's pass after a patch-graph result is shown: the result stays whatever
+  // happens to the estimate (stopped or failed).
+  async estimate(r, bytes, settings, bar, stage) {
+    const done = stage.textContent;
+    const planes = r.methodPlanes;
+    r.methodPlanes = null;
+    const show = progressLine(bar, stage);
+    this.run = splitEstimate(bytes.slice(), settings, planes, (f, s) => show(f, `estimating the error: ${s}`));
+    const t0 = performance.now();
+    try {
+      r.report.error_estimate = JSON.parse(await this.run.promise);
+      stage.textContent = `${done}; error estimated in ${fmt((performance.now() - t0) / 1000)} s`;
+    } catch (e) {
+      stage.textContent = `${done}; error estimate ${e instanceof Stopped ? 'stopped' : 'failed'}`;
+      if (!(e instanceof Stopped)) this.error(`error estimate: ${e.message}`);
+    }
+    bar.value = 1;
+    this.showMetrics();
+  }
 
   // PSNR and SSIM against the clean reference, when there is one of the same size.
   async measure() {
@@ -231,6 +265,7 @@ export class Pane {
     if (!r) return null;
     const res = r.report.residual;
     const st = r.settings;
+    const est = r.report.error_estimate;
     const round = (v, d) => (v === null || v === undefined || !Number.isFinite(v) ? v : Number(v.toFixed(d)));
     return {
       setting: this.name,
@@ -251,6 +286,9 @@ export class Pane {
       residual_std_over_sigma: round(mean(res.map((x) => x.std_over_sigma)), 4),
       residual_lag1_correlation: round(mean(res.map((x) => x.lag1_autocorrelation)), 4),
       residual_edge_correlation: round(mean(res.map((x) => x.edge_correlation)), 4),
+      estimated_psnr: est && est.psnr !== null && est.psnr !== undefined ? round(est.psnr, 3) : null,
+      estimated_gain_db: est && est.gain_db !== null && est.gain_db !== undefined ? round(est.gain_db, 3) : null,
+      estimated_mse: est && est.applies ? round(est.mse, 6) : null,
       psnr: r.quality ? round(r.quality.psnr, 3) : null,
       ssim: r.quality ? round(r.quality.ssim, 4) : null,
       seconds: round(r.seconds, 3),
@@ -286,6 +324,8 @@ export class Pane {
         'grain of what was removed: near 0 for white noise; higher when structure (or grainy noise) was removed'],
       ['Residual–edge correlation', fmt(m.residual_edge_correlation, 3),
         'whether what was removed follows the image\'s edges: near 0 is good; above 0.15 detail went too'],
+      ['Estimated PSNR (no reference)', estimateText(this.result.report.error_estimate),
+        'the error against the unknown clean image, from one more pass (Stein\'s unbiased risk estimate); it holds for noise independent from pixel to pixel'],
       ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`, 'higher is better; +1 dB is 21% less squared error'],
       ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4), 'structural similarity; 1 is identical'],
     ];

@@ -66,7 +66,38 @@ function windowOf(planes, width, y0, y1) {
 // Returns {promise, stop}; the promise gives what the single-worker 'denoise' gives, plus
 // `workers` (at most this many ran at once), `peakWorkerBytes`, and its two parts:
 // `bandWorkerBytes` (workers running bands) and `wholeImageWorkerBytes` (preparing, finishing).
-export function splitRun(bytes, settings, onProgress) {
+// With `keep`, it also gives `methodPlanes`, a copy of the method's output planes, which the
+// error estimate's pass needs ([`splitEstimate`]).
+export function splitRun(bytes, settings, onProgress, keep = false) {
+  return split(bytes, settings, onProgress, async (run, prep, planes, bands, peak, t0) => {
+    onProgress(0.95, 'writing the result');
+    const kept = keep ? planes.map((p) => p.slice()) : null;
+    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, planes.map((p) => p.buffer));
+    r.seconds = (performance.now() - t0) / 1000;
+    r.workers = Math.max(1, Math.min(poolSize, bands.length));
+    r.peakWorkerBytes = Math.max(peak.band, peak.whole);
+    r.bandWorkerBytes = peak.band;
+    r.wholeImageWorkerBytes = peak.whole;
+    if (kept) r.methodPlanes = kept;
+    return r;
+  });
+}
+
+// The error estimate's second pass: the same run on the input plus a small probe (the noise
+// model fitted on the input kept), then the estimate from both passes' planes. The promise
+// gives the estimate (JSON text of the core's ErrorEstimate).
+export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
+  return split(bytes, settings, onProgress, async (run, prep, planes) => {
+    onProgress(0.97, 'estimating the error');
+    const r = await run('estimate', { bytes: bytes.slice(), settings, result: resultPlanes, probe: planes },
+      [...planes, ...resultPlanes].map((p) => p.buffer));
+    return r.estimate;
+  }, true);
+}
+
+// The shared body: prepare (the probe's input with `probe`), run both stages over the bands,
+// then `end(run, prep, planes, bands, peak, t0)`.
+function split(bytes, settings, onProgress, end, probe = false) {
   const jobs = new Set();
   let stopped = false;
   // Peak wasm memory of a worker doing band jobs, and of one preparing or finishing the whole image.
@@ -116,21 +147,14 @@ export function splitRun(bytes, settings, onProgress) {
   const promise = (async () => {
     const t0 = performance.now();
     onProgress(0, 'preparing');
-    const prep = await run('prepare', { bytes: bytes.slice(), settings, bandRows: BAND_ROWS });
+    const prep = await run('prepare', { bytes: bytes.slice(), settings, bandRows: BAND_ROWS, probe });
     const bands = JSON.parse(prep.bands);
     let planes = prep.planes;
     if (bands.length) {
       const basic = await stage(prep, bands, null, 0.05, 0.45, 'basic estimate');
       planes = await stage(prep, bands, basic, 0.5, 0.45, 'final estimate');
     }
-    onProgress(0.95, 'writing the result');
-    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, planes.map((p) => p.buffer));
-    r.seconds = (performance.now() - t0) / 1000;
-    r.workers = Math.max(1, Math.min(poolSize, bands.length));
-    r.peakWorkerBytes = Math.max(peak.band, peak.whole);
-    r.bandWorkerBytes = peak.band;
-    r.wholeImageWorkerBytes = peak.whole;
-    return r;
+    return end(run, prep, planes, bands, peak, t0);
   })().catch((e) => {
     // One failed job fails the run: its other jobs stop instead of running on for nothing.
     for (const t of jobs) t.stop();

@@ -5,8 +5,10 @@ import { task, call, Stopped } from './tasks.js';
 import { splitRun } from './stitch.js';
 
 // One image: patch-graph runs split into bands across the workers; pixel-graph runs take one.
-export function runImage(bytes, settings, method, onProgress) {
-  return method === 'patch-graph' ? splitRun(bytes, settings, onProgress) : task('denoise', { bytes, settings }, onProgress);
+// With `estimate`, a pixel-graph run makes its error estimate's pass before it returns; a
+// patch-graph run keeps its planes (`methodPlanes`) for the pass, which `splitEstimate` makes.
+export function runImage(bytes, settings, method, onProgress, estimate = false) {
+  return method === 'patch-graph' ? splitRun(bytes, settings, onProgress, estimate) : task('denoise', { bytes, settings, estimate }, onProgress);
 }
 
 // Returns {promise, stop}; the promise gives {file, extension, reports}. `done(k)` may give a

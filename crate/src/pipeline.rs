@@ -307,31 +307,47 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
 /// second pass is skipped and the report says why.
 pub fn denoise_estimated(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
     let prepared = prepare(img, settings)?;
-    let top = f64::from(img.max_value());
-    let why_not = error_estimate::not_applicable(&prepared);
-    let span = if why_not.is_some() { 0.9 } else { 0.45 };
+    let probe_input = probe_planes(img, &prepared);
+    let span = if probe_input.is_none() { 0.9 } else { 0.45 };
     let planes_in = method_planes(&prepared);
     progress.report(0.02, "preparing");
     let output = run_method(&planes_in, &prepared, settings, &SubProgress { parent: progress, start: 0.05, span })?;
     drop(planes_in);
-    let estimate = match why_not {
-        Some(note) => ErrorEstimate::none(note, top),
-        None => {
-            let probe = Probe::for_run(&prepared);
-            let probe_planes = prepared.method_planes_of(&probe.perturbed(img));
+    let probed = match probe_input {
+        Some(planes) => {
             let sub = SubProgress { parent: progress, start: 0.5, span };
-            let second = run_method(&probe_planes, &prepared, settings, &ProbeStage(&sub))?;
-            drop(probe_planes);
-            let probed = img.with_channels(prepared.image_planes(second.planes));
-            let result = img.with_channels(prepared.image_planes(output.planes.clone()));
-            let e = error_estimate::estimate(img, &result, &probed, &probe, &PixelVariance::of(&prepared, top), prepared.clip.is_some());
-            if prepared.estimated { e.for_estimated_level() } else { e }
+            Some(run_method(&planes, &prepared, settings, &ProbeStage(&sub))?.planes)
         }
+        None => None,
     };
+    let estimate = estimate_error(img, &prepared, output.planes.clone(), probed);
     let mut out = finish(img, settings, prepared, output);
     out.report.error_estimate = Some(estimate);
     progress.report(1.0, "done");
     Ok(out)
+}
+
+/// The method planes of the probe's input (the image plus a small +-1 pattern), under the model
+/// fitted on the image; None where the estimate does not hold.
+pub fn probe_planes(img: &Image, prepared: &Prepared) -> Option<Vec<Plane>> {
+    if error_estimate::not_applicable(img, prepared).is_some() {
+        return None;
+    }
+    Some(prepared.method_planes_of(&Probe::for_run(prepared).perturbed(img)))
+}
+
+/// The error estimate from a run's method planes and the probe pass's (None: not applicable).
+pub fn estimate_error(img: &Image, prepared: &Prepared, result: Vec<Plane>, probed: Option<Vec<Plane>>) -> ErrorEstimate {
+    let top = f64::from(img.max_value());
+    let (Some(probed), None) = (probed, error_estimate::not_applicable(img, prepared)) else {
+        let why = error_estimate::not_applicable(img, prepared).unwrap_or_else(|| "the second pass was not run".into());
+        return ErrorEstimate::none(why, top);
+    };
+    let result = img.with_channels(prepared.image_planes(result));
+    let probed = img.with_channels(prepared.image_planes(probed));
+    let var = PixelVariance::of(prepared, top);
+    let e = error_estimate::estimate(img, &result, &probed, &Probe::for_run(prepared), &var, prepared.clip.is_some());
+    if prepared.estimated { e.for_estimated_level() } else { e }
 }
 
 /// Names the second pass's stages ("error estimate: matching").

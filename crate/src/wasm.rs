@@ -196,9 +196,9 @@ fn run_result(input: &[u8], max_megapixels: u32, settings: &Settings, img: &Imag
 }
 
 /// One run: the result as PNG at the input's depth, RGBA views (result, residual, cut map) and
-/// the run report as JSON.
+/// the run report as JSON; with `estimate`, a second pass and the error estimate in the report.
 #[wasm_bindgen]
-pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progress: &Function) -> Result<JsValue, JsError> {
+pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progress: &Function, estimate: bool) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let pixels = img.width * img.height;
@@ -210,25 +210,30 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
             PIXEL_GRAPH_MAX_PIXELS / 1_000_000
         )));
     }
-    let run = pipeline::denoise(&img, &settings, &JsProgress(on_progress)).map_err(js_err)?;
-    run_result(input, max_megapixels, &settings, &img, &run)
+    let progress = JsProgress(on_progress);
+    let run = if estimate { pipeline::denoise_estimated(&img, &settings, &progress) } else { pipeline::denoise(&img, &settings, &progress) };
+    run_result(input, max_megapixels, &settings, &img, &run.map_err(js_err)?)
 }
 
 /// First step of a patch-graph run split across workers: the method's planes (an array of
 /// Float32Arrays), the
 /// sigma and range, and the bands, each one job for a worker ([`run_band`]). No bands when there
-/// is nothing to remove (sigma 0).
+/// is nothing to remove (sigma 0). With `probe`, the planes are the error estimate's second
+/// input (the image plus the probe, under the model fitted on the image).
 #[wasm_bindgen(js_name = prepareRun)]
-pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_rows: u32) -> Result<JsValue, JsError> {
+pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_rows: u32, probe: bool) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
-    let planes = pipeline::method_planes(&p);
+    let probed = if probe { pipeline::probe_planes(&img, &p) } else { None };
+    // A probe pass that cannot give an estimate is not run: no bands, and the estimate says why.
+    let skip = probe && probed.is_none();
+    let planes = probed.unwrap_or_else(|| pipeline::method_planes(&p));
     let (sigma, range, spectra) = (p.sigma, p.range, p.spectra());
     drop(p);
     let (width, height) = (img.width, img.height);
     drop(img);
-    let plan: Vec<Band> = if sigma > 0.0 {
+    let plan: Vec<Band> = if sigma > 0.0 && !skip {
         let stage = Stage::new(&planes, None, 0, height, sigma, range, &settings.patch_graph, spectra.as_deref())
             .map_err(js_err)?;
         bands::plan(width, height, &stage.profile(), band_rows as usize)
@@ -307,6 +312,23 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
     }
     let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
     run_result(input, max_megapixels, &settings, &img, &run)
+}
+
+/// The error estimate (JSON) from a split run's method planes and its probe pass's
+/// ([`prepare_run`] with `probe`).
+#[wasm_bindgen(js_name = estimateError)]
+pub fn estimate_error(input: &[u8], settings_json: &str, result: &Array, probe: &Array, max_megapixels: u32) -> Result<String, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let img = decode(input, max_megapixels)?;
+    let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
+    let result = planes_from(result, img.width, img.height)?;
+    let probed = planes_from(probe, img.width, img.height)?;
+    if result.len() != p.working.len() || probed.len() != p.working.len() {
+        return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
+    }
+    let probed = pipeline::probe_planes(&img, &p).is_some().then_some(probed);
+    let e = pipeline::estimate_error(&img, &p, result, probed);
+    serde_json::to_string(&e).map_err(|e| JsError::new(&e.to_string()))
 }
 
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.

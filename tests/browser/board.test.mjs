@@ -4,19 +4,11 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { writeFileSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { start, openReady, ROOT, OUT } from './harness.mjs';
+import { session, ROOT, OUT } from './harness.mjs';
 
 const SAMPLES = join(ROOT, 'sample-images');
-let h; let page; let consoleErrors;
-
-before(async () => {
-  h = await start();
-  ({ page, consoleErrors } = await openReady(h));
-});
-
-after(async () => { await h.close(); });
-
-const pane = (i) => page.locator('.pane').nth(i);
+const s = session(before, after);
+const { pane } = s;
 
 async function run(i) {
   await pane(i).locator('.run').click();
@@ -28,13 +20,13 @@ test('at 1280 x 800 the first screen shows the settings, Run and most of the pic
   const box = await pane(0).locator('.viewport').boundingBox();
   const run = await pane(0).locator('.run').boundingBox();
   assert.ok(run.y + run.height < 800, `Run is at ${run.y}`);
-  await page.screenshot({ path: join(OUT, 'board-first-screen.png') });
+  await s.page.screenshot({ path: join(OUT, 'board-first-screen.png') });
   assert.ok(800 - box.y >= 300, `only ${800 - box.y} px of the picture show on the first screen`);
-  await page.screenshot({ path: join(OUT, 'board-first-screen.png') });
+  await s.page.screenshot({ path: join(OUT, 'board-first-screen.png') });
 });
 
 test('a result is marked out of date after an edit and after loading settings', async () => {
-  await page.waitForFunction(() => /Reference: cells-clean/.test(document.getElementById('reference-info').textContent));
+  await s.page.waitForFunction(() => /Reference: cells-clean/.test(document.getElementById('reference-info').textContent));
   await run(0);
   assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), false);
   assert.match(await pane(0).locator('.metrics').textContent(), /PSNR against reference\d/);
@@ -50,13 +42,13 @@ test('a result is marked out of date after an edit and after loading settings', 
   const file = join(OUT, 'board-settings.json');
   writeFileSync(file, JSON.stringify({ method: 'patch-graph', sigma: 25, patch_graph: { threshold: 3.5 } }));
   await pane(1).locator('.load-json').setInputFiles(file);
-  await page.waitForFunction(() => document.querySelectorAll('.pane')[1].classList.contains('stale'));
-  await page.screenshot({ path: join(OUT, 'board-stale.png'), fullPage: true });
+  await s.page.waitForFunction(() => document.querySelectorAll('.pane')[1].classList.contains('stale'));
+  await s.page.screenshot({ path: join(OUT, 'board-stale.png'), fullPage: true });
 });
 
 test('metrics against a refused reference disappear', async () => {
-  await page.setInputFiles('#reference', join(SAMPLES, 'board-clean.png'));
-  await page.waitForFunction(() => /Reference not used/.test(document.getElementById('reference-info').textContent));
+  await s.page.setInputFiles('#reference', join(SAMPLES, 'board-clean.png'));
+  await s.page.waitForFunction(() => /Reference not used/.test(document.getElementById('reference-info').textContent));
   assert.match(await pane(0).locator('.metrics').textContent(), /PSNR against referenceno reference/);
 });
 
@@ -67,11 +59,11 @@ test('views are offered only where the method has them', async () => {
   await pane(1).locator('select[name=method]').selectOption('pixel-graph');
   assert.equal(await pane(1).locator('input[value=cuts]').isVisible(), true);
   assert.equal(await pane(1).locator('.show-group').isVisible(), false);
-  assert.deepEqual(consoleErrors, []);
+  assert.deepEqual(s.consoleErrors, []);
 });
 
 // The canvas of pane i as a plain array, kept in the page under `key`.
-const grab = (i, key) => page.evaluate(([i, key]) => {
+const grab = (i, key) => s.page.evaluate(([i, key]) => {
   const c = document.querySelectorAll('.pane')[i].querySelector('.picture');
   window[key] = Array.from(c.getContext('2d').getImageData(0, 0, c.width, c.height).data);
   return [c.width, c.height];
@@ -92,7 +84,7 @@ test('flip, split and difference show the two results as they are', async () => 
   await grab(0, 'split');
   // Checked against the definitions: flip = B; difference = 8 |A - B| (RGB mean); split = A left of
   // the line, B right of it.
-  const bad = await page.evaluate(([w, h]) => {
+  const bad = await s.page.evaluate(([w, h]) => {
     const { A, B, flip, diff, split } = window;
     const errors = [];
     if (flip.some((v, i) => v !== B[i])) errors.push('flip is not B');
@@ -112,13 +104,13 @@ test('flip, split and difference show the two results as they are', async () => 
     return errors;
   }, [w, h]);
   assert.deepEqual(bad, []);
-  await page.screenshot({ path: join(OUT, 'board-split.png') });
+  await s.page.screenshot({ path: join(OUT, 'board-split.png') });
   await pane(0).locator('input[value=result]').check();
 });
 
 test('the table under the board is what Save metrics writes', async () => {
-  const table = await page.locator('#summary-table tr').evaluateAll((rows) => rows.map((r) => [...r.children].map((c) => c.textContent).join(',')));
-  const [d] = await Promise.all([page.waitForEvent('download'), page.locator('#save-csv').click()]);
+  const table = await s.page.locator('#summary-table tr').evaluateAll((rows) => rows.map((r) => [...r.children].map((c) => c.textContent).join(',')));
+  const [d] = await Promise.all([s.page.waitForEvent('download'), s.page.locator('#save-csv').click()]);
   const path = join(OUT, d.suggestedFilename());
   await d.saveAs(path);
   const csv = readFileSync(path, 'utf8').trim().split('\n');
@@ -127,9 +119,9 @@ test('the table under the board is what Save metrics writes', async () => {
 });
 
 test('on a phone-sized window nothing runs off the side', async () => {
-  await page.setViewportSize({ width: 390, height: 844 });
-  const overflow = await page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
-  await page.screenshot({ path: join(OUT, 'board-phone.png'), fullPage: false });
-  await page.setViewportSize({ width: 1280, height: 800 });
+  await s.page.setViewportSize({ width: 390, height: 844 });
+  const overflow = await s.page.evaluate(() => document.documentElement.scrollWidth - window.innerWidth);
+  await s.page.screenshot({ path: join(OUT, 'board-phone.png'), fullPage: false });
+  await s.page.setViewportSize({ width: 1280, height: 800 });
   assert.ok(overflow <= 0, `the page is ${overflow} px wider than the window`);
 });

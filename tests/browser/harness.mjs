@@ -35,3 +35,16 @@ export async function openReady(h) {
   await page.waitForSelector('body[data-ready=yes]', { timeout: 60000 });
   return { page, consoleErrors };
 }
+
+// One page for a file of tests: started before them, closed after; `s.page`, `s.consoleErrors`
+// and `s.pane(i)` (the i-th setting) once started.
+export function session(before, after) {
+  const s = {};
+  before(async () => {
+    s.h = await start();
+    Object.assign(s, await openReady(s.h));
+  });
+  after(async () => { await s.h.close(); });
+  s.pane = (i) => s.page.locator('.pane').nth(i);
+  return s;
+}

@@ -66,7 +66,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   assert.equal(prep.planes.length, 1);
   assert.ok(bands.length >= 3, `${bands.length} bands`);
   const { width: w, height: h } = prep;
-  const stage = (basic) => {
+  const stage = (prep, basic) => {
     const sums = bands.map(() => null);
     for (let i = bands.length - 1; i >= 0; i -= 1) {
       const b = bands[i];
@@ -84,10 +84,19 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
     }
     return out;
   };
-  const basic = stage(null);
-  const final = stage(basic);
+  const basic = stage(prep, null);
+  const final = stage(prep, basic);
   const r = pg.finishRun(sample, settings, [final], 64);
   assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
   assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), prep.spectra, new Float32Array(10), new Float32Array(0), () => {}),
     /do not match the image size/);
+  // The error estimate split the same way (the probe's input prepared, its bands run, the estimate
+  // from both passes' planes) equals the one-call estimate: invariant, same arithmetic.
+  const oneCall = JSON.parse(pg.denoise(sample, settings, 64, () => {}, true).report).error_estimate;
+  const probePrep = pg.prepareRun(sample, settings, 64, 64, true);
+  const probed = stage(probePrep, stage(probePrep, null));
+  const split = JSON.parse(pg.estimateError(sample, settings, [final], [probed], 64));
+  assert.deepEqual(split, oneCall);
+  // The sample's dark background is cut off at 0 over most of the image: the estimate says so.
+  assert.ok(!split.applies && /cut off at black/.test(split.note), JSON.stringify(split));
 });

@@ -31,7 +31,7 @@ impl Failure {
         Failure { code: 2, message }
     }
     /// A library error about one file, prefixed with the file's name.
-    fn about(path: &Path, e: Error) -> Self {
+    pub fn about(path: &Path, e: Error) -> Self {
         let code = match e {
             Error::Cancelled => 130,
             ref e if e.is_user_error() => 2,
@@ -41,9 +41,9 @@ impl Failure {
     }
 }
 
-type CmdResult = Result<(), Failure>;
+pub type CmdResult = Result<(), Failure>;
 
-fn read_document(path: &Path, limits: &DecodeLimits) -> Result<Document, Failure> {
+pub fn read_document(path: &Path, limits: &DecodeLimits) -> Result<Document, Failure> {
     let bytes = std::fs::read(path).map_err(|e| Failure::user(format!("{}: cannot read the file ({e})", path.display())))?;
     file::decode(&bytes, limits).map_err(|e| Failure::about(path, e))
 }
@@ -74,7 +74,7 @@ fn refuse_same_file(input: &Path, output: &Path) -> CmdResult {
     Ok(())
 }
 
-fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
+pub fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
     write_atomically(path, bytes).map_err(|e| Failure::user(format!("{}: cannot write the file ({e})", path.display())))
 }
 
@@ -141,7 +141,7 @@ pub fn read_settings(p: &Path) -> Result<Settings, Failure> {
     Settings::from_json(&text).map_err(|e| Failure::about(p, e))
 }
 
-fn auto_or_number(name: &str, text: &str) -> Result<AutoOr, Failure> {
+pub fn auto_or_number(name: &str, text: &str) -> Result<AutoOr, Failure> {
     if text.eq_ignore_ascii_case("auto") {
         return Ok(AutoOr::AUTO);
     }

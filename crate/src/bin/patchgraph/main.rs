@@ -4,6 +4,7 @@
 
 mod batch;
 mod commands;
+mod sweep;
 mod terminal;
 
 use clap::{Parser, Subcommand, ValueEnum};
@@ -73,6 +74,9 @@ enum Command {
         #[arg(long)]
         json: bool,
     },
+    /// One parameter over several values, each result's error estimated without a clean image;
+    /// writes a CSV (one row per value) and names the value of lowest estimated error.
+    Sweep(sweep::SweepArgs),
     /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
     Metrics {
         /// The clean reference.
@@ -117,6 +121,7 @@ fn main() -> ExitCode {
         }
         Command::Metrics { clean, test, json } => commands::metrics(&clean, &test, json),
         Command::Inspect { input, json } => commands::inspect(&input, json),
+        Command::Sweep(args) => sweep::sweep(args),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
