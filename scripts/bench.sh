@@ -15,6 +15,7 @@ work="$(mktemp -d)"; trap 'rm -rf "$work"' EXIT
 io.imsave('$work/camera512-s25.png', devset.add_noise(devset.grey_images()['camera512'], 25), check_contrast=False)"
 node tests/browser/bench.mjs "$work/camera512-s25.png" | tee -a "$out"
 if [ "${1:-}" != "--quick" ]; then
+  "$VENV/bin/python" tests/bench/estimate.py "$ROOT/target/release/patchgraph" | tee -a "$out"
   "$VENV/bin/python" tests/bench/large.py "$ROOT/target/release/patchgraph" "$work/large" | tee -a "$out"
   node tests/browser/bench-large.mjs "$work/large" | tee -a "$out"
 fi

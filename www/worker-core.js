@@ -11,7 +11,7 @@ export const simdSupported = () => WebAssembly.validate(SIMD_PROBE);
 // `build` names the wasm build in use ('simd128' or 'baseline'); every reply carries it.
 export function installWorker(pg, ready, build) {
   const MAX_MEGAPIXELS = 64;
-  const keys = ['rgba', 'file', 'residual', 'cuts', 'planes', 'num', 'den'];
+  const keys = ['rgba', 'file', 'residual', 'cuts', 'detail', 'planes', 'num', 'den'];
   // Large arrays move to the page instead of being copied; `planes` is an array of them.
   const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k])
     .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]))

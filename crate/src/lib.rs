@@ -17,6 +17,7 @@ pub mod pipeline;
 pub mod planes;
 pub mod preview;
 pub mod progress;
+pub mod removed_detail;
 pub mod run_file;
 pub mod settings;
 pub mod synth;

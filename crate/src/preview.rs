@@ -80,6 +80,22 @@ pub fn residual_rgba8(noisy: &Image, result: &Image, sigma: f64, f: usize) -> Ve
     })
 }
 
+/// The result in dimmed grey with red where `map` (local correlations) is above `flag`, the
+/// stronger the redder.
+pub fn flagged_rgba8(result: &Image, map: &Plane, flag: f32, f: usize) -> Vec<u8> {
+    let scale = 255.0 / result.max_value() / result.channels.len() as f32;
+    shrink(result.width, result.height, f, true, |i| {
+        let g = 0.6 * scale * result.channels.iter().map(|c| c.data[i]).sum::<f32>();
+        let m = map.data[i];
+        if m > flag {
+            let t = ((m - flag) / (1.0 - flag)).clamp(0.0, 1.0);
+            [g + (255.0 - g) * (0.6 + 0.4 * t), g * (0.4 - 0.4 * t), g * (0.4 - 0.4 * t), 255.0]
+        } else {
+            [g, g, g, 255.0]
+        }
+    })
+}
+
 /// A plane of values in [0, 1] (the cut fraction) drawn dark-to-light.
 pub fn unit_plane_rgba8(p: &Plane, f: usize) -> Vec<u8> {
     shrink(p.width, p.height, f, true, |i| {

@@ -9,7 +9,7 @@ use crate::methods::MethodOutput;
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::pipeline::RunOutput;
 use crate::planes::{Image, Plane};
-use crate::{metrics, pipeline, preview, Error, Progress, Settings};
+use crate::{metrics, pipeline, preview, removed_detail, Error, Progress, Settings};
 use js_sys::{Array, Float32Array, Float64Array, Function, Object, Reflect, Uint8Array};
 use wasm_bindgen::prelude::*;
 use wasm_bindgen::JsCast;
@@ -101,6 +101,9 @@ fn result_file(input: &[u8], max_megapixels: u32, result: &Image, settings: &Set
 /// per pixel for colour, so 16 MP is about 2.2 GiB; 40 MP grey ran out).
 const PIXEL_GRAPH_MAX_PIXELS: usize = 16_000_000;
 
+/// Largest image whose removed-detail map the page draws (7 f32 planes: 450 MB at 16 MP).
+const DETAIL_MAP_MAX_PIXELS: usize = 16_000_000;
+
 #[wasm_bindgen(start)]
 pub fn start() {
     console_error_panic_hook::set_once();
@@ -189,6 +192,12 @@ fn run_result(input: &[u8], max_megapixels: u32, settings: &Settings, img: &Imag
     set(&obj, "residual", &bytes(&preview::residual_rgba8(img, &run.image, sigma, f)))?;
     if let Some(map) = &run.cut_map {
         set(&obj, "cuts", &bytes(&preview::unit_plane_rgba8(map, f)))?;
+    }
+    // Where structure was removed: drawn up to DETAIL_MAP_MAX_PIXELS (it holds 7 planes of f32).
+    if img.width * img.height <= DETAIL_MAP_MAX_PIXELS {
+        let map = removed_detail::map(img, &run.image, run.report.noise.mean_level);
+        set(&obj, "detail", &bytes(&preview::flagged_rgba8(&run.image, &map, removed_detail::FLAG, f)))?;
+        set(&obj, "detailShare", &JsValue::from_f64(removed_detail::flagged_share(&map)))?;
     }
     let report = serde_json::to_string(&run.report).map_err(|e| JsError::new(&e.to_string()))?;
     set(&obj, "report", &JsValue::from_str(&report))?;

@@ -49,6 +49,10 @@ test('with sigma given, both settings are estimated and the lower error is marke
   const best = await s.page.$$eval('.pane', (ps) => ps.findIndex((p) => !p.querySelector('.best-note').hidden));
   const truth = rows.slice(1).map((r) => Number(r[col('psnr')]));
   assert.equal(best, truth.indexOf(Math.max(...truth)));
+  // The removed-detail view: its legend gives the share flagged, and the picture is the result
+  // (grey) with red only where flagged.
+  await pane(1).locator('.views input[value=detail]').check();
+  assert.match(await pane(1).locator('.legend').textContent(), /Red: where the removed part follows .* \d+\.\d% of the image\./);
   await s.page.screenshot({ path: join(OUT, 'estimate-board.png'), fullPage: true });
 });
 
