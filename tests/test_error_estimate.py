@@ -12,7 +12,6 @@ import pytest
 import tifffile
 from skimage import color, data
 
-import devset
 
 SIGMAS = (10, 25, 50)
 
@@ -61,7 +60,7 @@ def test_the_estimate_is_refused_for_correlated_noise(patchgraph, tmp_path):
     from scipy.ndimage import uniform_filter
 
     rng = np.random.Generator(np.random.PCG64(5))
-    clean = devset.micrograph()
+    clean = data.brick()[:256, :256].astype(np.float64)
     noise = uniform_filter(rng.standard_normal((256, 256)) * 30.0, size=3)
     noisy = np.clip(np.rint(clean + noise), 0, 255).astype(np.uint8)
     src = tmp_path / "correlated.tif"

@@ -89,6 +89,12 @@ fn too_clipped(share: f64) -> String {
 /// Why no estimate can be made for a prepared run of `img`, in a sentence; None when it can.
 /// (Checked before the second pass, so a pass that cannot give an estimate is not run.)
 pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
+    if p.noise.planes.iter().any(|q| q.spectrum.is_some()) {
+        return Some(
+            "the noise is spatially correlated, and the estimate holds only for noise that is independent from pixel to pixel"
+                .into(),
+        );
+    }
     if p.clip.is_some() {
         let top = f64::from(img.max_value());
         let total = (img.width * img.height * img.channels.len()).max(1);
@@ -97,12 +103,6 @@ pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
         if share < MIN_COVERED {
             return Some(too_clipped(share));
         }
-    }
-    if p.noise.planes.iter().any(|q| q.spectrum.is_some()) {
-        return Some(
-            "the noise is spatially correlated, and the estimate holds only for noise that is independent from pixel to pixel"
-                .into(),
-        );
     }
     if p.sigma <= 0.0 {
         return Some("there is no noise to remove at sigma 0".into());
