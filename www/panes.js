@@ -200,7 +200,7 @@ export class Pane {
       r.quality = null;
       this.results.set(unit, r);
       // The slice control may have moved on while this ran: the result waits for its image.
-      if (this.app.source !== src || src.file !== file || src.unit !== unit) return;
+      if (this.app.source !== src || src.file !== file || src.unit !== unit) { r.methodPlanes = null; return; }
       this.result = r;
       this.saved = false;
       this.q('.save-png').disabled = false;

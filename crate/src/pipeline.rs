@@ -15,7 +15,7 @@ use crate::noise::vst::{CurveVst, Stabiliser};
 use crate::noise::spectrum::{self, NoiseSpectrum};
 use crate::noise::{self, NoiseEstimate};
 use crate::planes::{Image, Plane};
-use crate::progress::{Progress, SubProgress};
+use crate::progress::{Labelled, Progress, SubProgress};
 use crate::settings::{Method, NoiseModel, Settings, Sigma};
 use serde::Serialize;
 
@@ -316,7 +316,8 @@ pub fn denoise_estimated(img: &Image, settings: &Settings, progress: &dyn Progre
     let probed = match probe_input {
         Some(planes) => {
             let sub = SubProgress { parent: progress, start: 0.5, span };
-            Some(run_method(&planes, &prepared, settings, &ProbeStage(&sub))?.planes)
+            let named = Labelled { parent: &sub, start: 0.0, span: 1.0, label: "error estimate".into() };
+            Some(run_method(&planes, &prepared, settings, &named)?.planes)
         }
         None => None,
     };
@@ -339,27 +340,17 @@ pub fn probe_planes(img: &Image, prepared: &Prepared) -> Option<Vec<Plane>> {
 /// The error estimate from a run's method planes and the probe pass's (None: not applicable).
 pub fn estimate_error(img: &Image, prepared: &Prepared, result: Vec<Plane>, probed: Option<Vec<Plane>>) -> ErrorEstimate {
     let top = f64::from(img.max_value());
-    let (Some(probed), None) = (probed, error_estimate::not_applicable(img, prepared)) else {
-        let why = error_estimate::not_applicable(img, prepared).unwrap_or_else(|| "the second pass was not run".into());
+    if let Some(why) = error_estimate::not_applicable(img, prepared) {
         return ErrorEstimate::none(why, top);
+    }
+    let Some(probed) = probed else {
+        return ErrorEstimate::none("the second pass was not run".into(), top);
     };
     let result = img.with_channels(prepared.image_planes(result));
     let probed = img.with_channels(prepared.image_planes(probed));
     let var = PixelVariance::of(prepared, top);
     let e = error_estimate::estimate(img, &result, &probed, &Probe::for_run(prepared), &var, prepared.clip.is_some());
     if prepared.estimated { e.for_estimated_level() } else { e }
-}
-
-/// Names the second pass's stages ("error estimate: matching").
-struct ProbeStage<'a>(&'a dyn Progress);
-
-impl Progress for ProbeStage<'_> {
-    fn report(&self, fraction: f32, stage: &str) {
-        self.0.report(fraction, &format!("error estimate: {stage}"));
-    }
-    fn is_cancelled(&self) -> bool {
-        self.0.is_cancelled()
-    }
 }
 
 /// Colour planes from a method's planes (opponent back to RGB; grey planes as they are).

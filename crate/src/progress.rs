@@ -35,6 +35,29 @@ impl Progress for SubProgress<'_> {
     }
 }
 
+/// A share [start, start + span] of the parent's run whose stages carry a label ("page 2 of 5:
+/// matching", "error estimate: matching"); an empty label leaves them as they are.
+pub struct Labelled<'a> {
+    pub parent: &'a dyn Progress,
+    pub start: f32,
+    pub span: f32,
+    pub label: String,
+}
+
+impl Progress for Labelled<'_> {
+    fn report(&self, fraction: f32, stage: &str) {
+        let f = self.start + self.span * fraction.clamp(0.0, 1.0);
+        if self.label.is_empty() {
+            self.parent.report(f, stage);
+        } else {
+            self.parent.report(f, &format!("{}: {stage}", self.label));
+        }
+    }
+    fn is_cancelled(&self) -> bool {
+        self.parent.is_cancelled()
+    }
+}
+
 /// Returns `Err(Cancelled)` when the run was cancelled; call at checkpoints.
 pub fn check(p: &dyn Progress) -> crate::Result<()> {
     if p.is_cancelled() {

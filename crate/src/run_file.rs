@@ -6,7 +6,7 @@ use crate::file::samples::ValueMap;
 use crate::file::Document;
 use crate::pipeline::{self, RunReport};
 use crate::planes::Plane;
-use crate::progress::Progress;
+use crate::progress::{Labelled, Progress};
 use crate::settings::{AutoOr, Settings};
 
 pub struct FileRun {
@@ -34,28 +34,6 @@ pub fn in_working_units(s: &Settings, map: ValueMap) -> Settings {
     w
 }
 
-/// Names the unit in each progress stage ("page 2 of 5: matching") and maps its share of the run.
-struct UnitProgress<'a> {
-    parent: &'a dyn Progress,
-    start: f32,
-    span: f32,
-    label: String,
-}
-
-impl Progress for UnitProgress<'_> {
-    fn report(&self, fraction: f32, stage: &str) {
-        let f = self.start + self.span * fraction.clamp(0.0, 1.0);
-        if self.label.is_empty() {
-            self.parent.report(f, stage);
-        } else {
-            self.parent.report(f, &format!("{}: {stage}", self.label));
-        }
-    }
-    fn is_cancelled(&self) -> bool {
-        self.parent.is_cancelled()
-    }
-}
-
 /// With `estimate_error`, each unit's report carries its error estimate (one more pass per unit),
 /// in the file's own units.
 pub fn denoise_file(doc: &Document, settings: &Settings, estimate_error: bool, progress: &dyn Progress) -> Result<FileRun> {
@@ -64,7 +42,7 @@ pub fn denoise_file(doc: &Document, settings: &Settings, estimate_error: bool, p
     let mut reports = Vec::with_capacity(n);
     let mut cut_map = None;
     for k in 0..n {
-        let sub = UnitProgress { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
+        let sub = Labelled { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
         let img = doc.unit(k)?;
         let map = doc.unit_map(k);
         let working = in_working_units(settings, map);
