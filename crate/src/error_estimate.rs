@@ -16,7 +16,7 @@
 
 use crate::noise::vst::Stabiliser;
 use crate::pipeline::Prepared;
-use crate::planes::{Image, Plane};
+use crate::planes::{box_mean, Image, Plane};
 use serde::{Deserialize, Serialize};
 
 /// Pixels whose result lies within this many noise stds of 0 or the top are left out where the
@@ -86,14 +86,23 @@ fn too_clipped(share: f64) -> String {
     )
 }
 
-/// Why no estimate can be made for a prepared run of `img`, in a sentence; None when it can.
-/// (Checked before the second pass, so a pass that cannot give an estimate is not run.)
-pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
+/// Why the model rules the estimate out (correlated noise, no noise), without looking at the
+/// pixels; None when it does not.
+fn model_rules_out(p: &Prepared) -> Option<String> {
     if p.noise.planes.iter().any(|q| q.spectrum.is_some()) {
         return Some(
             "the noise is spatially correlated, and the estimate holds only for noise that is independent from pixel to pixel"
                 .into(),
         );
+    }
+    (p.sigma <= 0.0).then(|| "there is no noise to remove at sigma 0".into())
+}
+
+/// Why no estimate can be made for a prepared run of `img`, in a sentence; None when it can.
+/// (Checked before the second pass, so a pass that cannot give an estimate is not run.)
+pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
+    if let Some(why) = model_rules_out(p) {
+        return Some(why);
     }
     if p.clip.is_some() {
         let top = f64::from(img.max_value());
@@ -103,9 +112,6 @@ pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
         if share < MIN_COVERED {
             return Some(too_clipped(share));
         }
-    }
-    if p.sigma <= 0.0 {
-        return Some("there is no noise to remove at sigma 0".into());
     }
     None
 }
@@ -198,9 +204,7 @@ impl ErrorEstimate {
             range,
         }
     }
-}
 
-impl ErrorEstimate {
     /// The same estimate for data whose working grey level is `scale` units of the file (PSNR
     /// and gains do not change).
     pub fn in_units(&mut self, scale: f64) {
@@ -209,36 +213,15 @@ impl ErrorEstimate {
     }
 }
 
-/// Samples with a clipped input sample (at 0 or the top) within [`CUT_REACH`] pixels: their own
-/// value is likely near the end too, whatever the result says (a strong smoothing can carry a
-/// result far from its pixel's value).
+/// Samples with a clipped input sample (at 0 or the top) within [`CUT_REACH`] pixels, their own
+/// sample not counted: their value is likely near the end too, whatever the result says (a strong
+/// smoothing can carry a result far from its pixel's value). Choosing pixels by their own noise
+/// would bias them (Stein's lemma holds given the other pixels' noise, not given one's own).
 fn near_clipped(y: &Plane, top: f64) -> Vec<bool> {
-    let (w, h) = (y.width, y.height);
-    let cut: Vec<bool> = y.data.iter().map(|v| f64::from(*v) <= 0.0 || f64::from(*v) >= top).collect();
-    let r = CUT_REACH;
-    let mut rows = vec![false; w * h];
-    for yy in 0..h {
-        for x in 0..w {
-            rows[yy * w + x] = (x.saturating_sub(r)..(x + r + 1).min(w)).any(|k| cut[yy * w + k]);
-        }
-    }
-    // Counts, so that the pixel's own sample can be taken out: choosing pixels by their own noise
-    // would bias it (Stein's lemma holds given the other pixels' noise, not given one's own).
-    let mut out = vec![false; w * h];
-    for yy in 0..h {
-        for x in 0..w {
-            let y0 = yy.saturating_sub(r);
-            let y1 = (yy + r + 1).min(h);
-            let x0 = x.saturating_sub(r);
-            let x1 = (x + r + 1).min(w);
-            if !(y0..y1).any(|k| rows[k * w + x]) {
-                continue;
-            }
-            let others = (y0..y1).flat_map(|k| (x0..x1).map(move |j| (k, j))).filter(|&(k, j)| (k, j) != (yy, x));
-            out[yy * w + x] = others.into_iter().any(|(k, j)| cut[k * w + j]);
-        }
-    }
-    out
+    let cut: Vec<f32> = y.data.iter().map(|v| if f64::from(*v) <= 0.0 || f64::from(*v) >= top { 1.0 } else { 0.0 }).collect();
+    let area = ((2 * CUT_REACH + 1) * (2 * CUT_REACH + 1)) as f32;
+    // Window counts (borders repeat their edge samples); 0.5 absorbs the float sums' rounding.
+    box_mean(&cut, y.width, y.height, CUT_REACH).iter().zip(&cut).map(|(m, own)| m * area - own > 0.5).collect()
 }
 
 /// With an estimated noise level the estimate moves by `per_sigma_percent_db` for each 1% the
@@ -305,10 +288,11 @@ pub fn estimate(noisy: &Image, result: &Image, probed: &Image, probe: &Probe, va
     // The estimate's own noise: n'n - sum v about its mean (the part of SURE no probe removes),
     // and the probe's, each term taken as independent (approximate).
     let spread = (2.0 * variance_sq + 4.0 * (div_sq - divergence * divergence / count).max(0.0)).sqrt();
-    let sensitivity_total = (-variance + 2.0 * divergence) * 0.0201;
+    // A noise std 1% high scales every variance by 1.01^2.
+    let sensitivity_total = (-variance + 2.0 * divergence) * (1.01f64.powi(2) - 1.0);
     let mut notes: Vec<&str> = Vec::new();
     if var.heteroscedastic() {
-        notes.push("the noise is taken as Gaussian with the fitted brightness-dependent variance at each pixel (an approximation)");
+        notes.push("the noise is taken as Gaussian with the noise model's brightness-dependent variance at each pixel (an approximation)");
     }
     let share = covered as f64 / (n * noisy.channels.len()).max(1) as f64;
     let clipped_note = format!(

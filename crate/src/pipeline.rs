@@ -340,6 +340,8 @@ pub fn probe_planes(img: &Image, prepared: &Prepared) -> Option<Vec<Plane>> {
 /// The error estimate from a run's method planes and the probe pass's (None: not applicable).
 pub fn estimate_error(img: &Image, prepared: &Prepared, result: Vec<Plane>, probed: Option<Vec<Plane>>) -> ErrorEstimate {
     let top = f64::from(img.max_value());
+    // The same check as before the pass (one box filter per channel), so the page's split run and
+    // the one-call run give the same answer.
     if let Some(why) = error_estimate::not_applicable(img, prepared) {
         return ErrorEstimate::none(why, top);
     }

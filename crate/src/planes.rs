@@ -120,6 +120,44 @@ mod tests {
     }
 }
 
+/// Mean of `src` over a (2pr+1)^2 window, borders clamped; separable running sums, O(1) per pixel.
+pub fn box_mean(src: &[f32], w: usize, h: usize, pr: usize) -> Vec<f32> {
+    if pr == 0 {
+        return src.to_vec();
+    }
+    let r = pr as isize;
+    let area = ((2 * pr + 1) * (2 * pr + 1)) as f32;
+    let clamp = |i: isize, n: usize| i.clamp(0, n as isize - 1) as usize;
+    let mut rows = vec![0.0f32; w * h];
+    for y in 0..h {
+        let line = &src[y * w..(y + 1) * w];
+        let mut acc: f32 = (-r..=r).map(|d| line[clamp(d, w)]).sum();
+        rows[y * w] = acc;
+        for x in 1..w {
+            acc += line[clamp(x as isize + r, w)] - line[clamp(x as isize - 1 - r, w)];
+            rows[y * w + x] = acc;
+        }
+    }
+    let mut out = vec![0.0f32; w * h];
+    let mut acc: Vec<f32> = vec![0.0; w];
+    for d in -r..=r {
+        let row = clamp(d, h) * w;
+        acc.iter_mut().zip(&rows[row..row + w]).for_each(|(a, v)| *a += v);
+    }
+    for y in 0..h {
+        if y > 0 {
+            let (add, sub) = (clamp(y as isize + r, h) * w, clamp(y as isize - 1 - r, h) * w);
+            for x in 0..w {
+                acc[x] += rows[add + x] - rows[sub + x];
+            }
+        }
+        for x in 0..w {
+            out[y * w + x] = acc[x] / area;
+        }
+    }
+    out
+}
+
 /// Normalised Gaussian taps of radius ceil(3 s).
 pub fn gaussian_taps(s: f64) -> Vec<f32> {
     let r = (3.0 * s).ceil() as isize;

@@ -6,7 +6,7 @@
 //! ours: under independence a correlation over 81 samples has std about 1/9, and the detail's own
 //! smoothness widens that, so 0.4 is several stds out.)
 
-use crate::planes::{gaussian_blur, Image, Plane};
+use crate::planes::{box_mean, gaussian_blur, Image, Plane};
 
 const RADIUS: usize = 4;
 /// Local correlations above this mark a pixel as "structure removed".
@@ -16,39 +16,6 @@ pub const FLAG: f32 = 0.4;
 fn mean_plane(img: &Image) -> Plane {
     let n = img.channels.len() as f32;
     Plane::from_fn(img.width, img.height, |x, y| img.channels.iter().map(|c| c.get(x, y)).sum::<f32>() / n)
-}
-
-/// Box sums over (2 RADIUS + 1)^2 windows clipped at the borders: separable running sums in f64,
-/// kept as f32 (4 bytes a pixel per plane, for large images).
-fn box_sums(v: &[f32], w: usize, h: usize) -> Vec<f32> {
-    let mut rows = vec![0.0f32; w * h];
-    for y in 0..h {
-        let line = &v[y * w..(y + 1) * w];
-        let mut acc: f64 = line[..RADIUS.min(w)].iter().map(|x| f64::from(*x)).sum();
-        for x in 0..w {
-            if x + RADIUS < w {
-                acc += f64::from(line[x + RADIUS]);
-            }
-            if x > RADIUS {
-                acc -= f64::from(line[x - RADIUS - 1]);
-            }
-            rows[y * w + x] = acc as f32;
-        }
-    }
-    let mut out = vec![0.0f32; w * h];
-    for x in 0..w {
-        let mut acc: f64 = (0..RADIUS.min(h)).map(|y| f64::from(rows[y * w + x])).sum();
-        for y in 0..h {
-            if y + RADIUS < h {
-                acc += f64::from(rows[(y + RADIUS) * w + x]);
-            }
-            if y > RADIUS {
-                acc -= f64::from(rows[(y - RADIUS - 1) * w + x]);
-            }
-            out[y * w + x] = acc as f32;
-        }
-    }
-    out
 }
 
 /// Local detail weaker than this many noise stds is not looked at: a result keeps a little of
@@ -69,18 +36,17 @@ pub fn map(noisy: &Image, result: &Image, sigma: f64) -> Plane {
     let d: Vec<f32> = f.data.iter().zip(&blur.data).map(|(a, b)| a - b).collect();
     drop((f, blur));
     let prod = |a: &[f32], b: &[f32]| -> Vec<f32> { a.iter().zip(b).map(|(x, y)| x * y).collect() };
-    let (sr, sd) = (box_sums(&r, w, h), box_sums(&d, w, h));
-    let (srr, sdd, srd) = (box_sums(&prod(&r, &r), w, h), box_sums(&prod(&d, &d), w, h), box_sums(&prod(&r, &d), w, h));
+    let mean = |v: &[f32]| box_mean(v, w, h, RADIUS);
+    let (mr, md) = (mean(&r), mean(&d));
+    let (mrr, mdd, mrd) = (mean(&prod(&r, &r)), mean(&prod(&d, &d)), mean(&prod(&r, &d)));
+    let min_var = (MIN_DETAIL * sigma).powi(2);
     let data = (0..w * h)
         .map(|i| {
-            let (x, y) = (i % w, i / w);
-            let n = ((x + RADIUS + 1).min(w) - x.saturating_sub(RADIUS)) as f64 * ((y + RADIUS + 1).min(h) - y.saturating_sub(RADIUS)) as f64;
-            let (sr, sd) = (f64::from(sr[i]), f64::from(sd[i]));
-            let cov = f64::from(srd[i]) - sr * sd / n;
-            let vr = f64::from(srr[i]) - sr * sr / n;
-            let vd = f64::from(sdd[i]) - sd * sd / n;
-            let weak = vd <= n * (MIN_DETAIL * sigma).powi(2);
-            if weak || vr <= 1e-6 * n || vd <= 1e-6 * n { 0.0 } else { (cov / (vr * vd).sqrt()).clamp(-1.0, 1.0) as f32 }
+            let (mr, md) = (f64::from(mr[i]), f64::from(md[i]));
+            let cov = f64::from(mrd[i]) - mr * md;
+            let vr = f64::from(mrr[i]) - mr * mr;
+            let vd = f64::from(mdd[i]) - md * md;
+            if vd <= min_var || vr <= 1e-6 || vd <= 1e-6 { 0.0 } else { (cov / (vr * vd).sqrt()).clamp(-1.0, 1.0) as f32 }
         })
         .collect();
     Plane { width: w, height: h, data }

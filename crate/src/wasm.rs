@@ -335,8 +335,9 @@ pub fn estimate_error(input: &[u8], settings_json: &str, result: &Array, probe: 
     if result.len() != p.working.len() || probed.len() != p.working.len() {
         return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
     }
-    let probed = pipeline::probe_planes(&img, &p).is_some().then_some(probed);
-    let e = pipeline::estimate_error(&img, &p, result, probed);
+    // Where prepareRun skipped the pass, the planes are unperturbed, and the estimate finds the
+    // same reason before it looks at them.
+    let e = pipeline::estimate_error(&img, &p, result, Some(probed));
     serde_json::to_string(&e).map_err(|e| JsError::new(&e.to_string()))
 }
 

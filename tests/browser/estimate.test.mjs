@@ -43,7 +43,8 @@ test('with sigma given, both settings are estimated and the lower error is marke
   const head = await s.page.locator('#summary-table tr').first().textContent();
   assert.match(head, /estimated_psnr.*estimated_gain_db.*estimated_mse.*psnr/);
   // Against the clean reference the page loaded with the sample, the marked setting is also the
-  // one of higher true PSNR (the two methods differ by several dB here).
+  // one of higher true PSNR (the two methods differ by several dB here; the page's PSNR is checked
+  // against scikit-image's in tests/test_metrics_vs_skimage.py).
   const rows = await s.page.$$eval('#summary-table tr', (trs) => trs.map((tr) => [...tr.children].map((c) => c.textContent)));
   const col = (name) => rows[0].indexOf(name);
   const best = await s.page.$$eval('.pane', (ps) => ps.findIndex((p) => !p.querySelector('.best-note').hidden));
