@@ -161,7 +161,8 @@ fn the_group_of_a_clicked_pixel_covers_it_and_is_ranked() {
     assert!(rx <= 30 && 30 < rx + 8 && ry <= 20 && 20 < ry + 8);
     assert_eq!(g.similarity[0], 1.0);
     assert!(g.similarity.windows(2).all(|v| v[0] >= v[1]));
-    assert!(g.positions.iter().all(|&(x, y)| x.abs_diff(rx) <= 12 && y.abs_diff(ry) <= 12));
+    let r = patchgraph::methods::patch_graph::profile(&s, 8.0).search;
+    assert!(g.positions.iter().all(|&(x, y)| x.abs_diff(rx) <= r && y.abs_diff(ry) <= r));
     // Stripes of period 12: the best matches sit at horizontal shifts that are multiples of 12.
     assert!(g.positions[1..4].iter().all(|&(x, _)| x.abs_diff(rx) % 12 == 0), "{:?}", &g.positions[..4]);
 }
