@@ -189,7 +189,6 @@ function wireInput() {
   });
   $('sample').addEventListener('change', (e) => { if (e.target.value) loadSample(e.target.value); });
   $('slice').addEventListener('change', (e) => showUnit(Number(e.target.value) - 1));
-  $('drop').addEventListener('keydown', (e) => { if (e.key === 'Enter' || e.key === ' ') { e.preventDefault(); $('file').click(); } });
   document.addEventListener('dragover', (e) => { e.preventDefault(); document.body.classList.add('dragging'); });
   document.addEventListener('dragleave', (e) => { if (!e.relatedTarget) document.body.classList.remove('dragging'); });
   document.addEventListener('drop', async (e) => {
@@ -276,7 +275,7 @@ function wireToolbar() {
   $('run-all').addEventListener('click', () => app.panes.forEach((p) => p.start()));
   $('save-csv').addEventListener('click', () => app.download('patchgraph-metrics.csv', new Blob([csv()], { type: 'text/csv' })));
   onViewChange(() => {
-    for (const p of app.panes) applyTo([p.canvas, p.overlay]);
+    for (const p of app.panes) { applyTo([p.canvas, p.overlay]); p.placeDivider(); }
     $('zoom-level').textContent = `${Math.round(view.scale * 100)} %`;
   });
   window.addEventListener('beforeunload', (e) => {

@@ -100,6 +100,7 @@ export class Pane {
     q('.remove').addEventListener('click', () => this.app.removePane(this));
     attach(this.viewport, (x, y) => { if (q('.show-group').checked) this.showGroup(x, y); });
     q('.split-at').addEventListener('input', () => this.paint());
+    this.wireDivider(q('.divider'));
     q('.show-group').addEventListener('change', (e) => { if (!e.target.checked) this.clearOverlay(); });
     // Keyboard: X flips between this result and the other setting's.
     this.viewport.addEventListener('keydown', (e) => {
@@ -352,6 +353,41 @@ export class Pane {
     this.paint();
   }
 
+  // The split line on the view: dragged with the pointer (without panning the view) or moved by
+  // arrow keys; it and the slider hold one value, the line's place in per cent of the width.
+  wireDivider(d) {
+    const slider = this.q('.split-at');
+    const set = (v) => { slider.value = String(Math.min(100, Math.max(0, v))); this.paint(); };
+    const toValue = (clientX) => {
+      const r = this.viewport.getBoundingClientRect();
+      const f = Number(this.canvas.dataset.factor) || 1;
+      return (100 * (clientX - r.left - view.x)) / (view.scale * f * this.canvas.width);
+    };
+    d.addEventListener('pointerdown', (e) => { e.stopPropagation(); d.setPointerCapture(e.pointerId); d.dataset.dragging = '1'; });
+    d.addEventListener('pointermove', (e) => { if (d.dataset.dragging) { e.stopPropagation(); set(toValue(e.clientX)); } });
+    const end = (e) => { e.stopPropagation(); delete d.dataset.dragging; };
+    d.addEventListener('pointerup', end);
+    d.addEventListener('pointercancel', end);
+    d.addEventListener('keydown', (e) => {
+      const step = { ArrowLeft: -1, ArrowRight: 1, PageDown: -10, PageUp: 10 }[e.key];
+      if (step === undefined) return;
+      e.preventDefault(); e.stopPropagation();
+      set(Number(slider.value) + step);
+    });
+  }
+
+  // Keeps the divider over the split line (called after every paint and view change).
+  placeDivider() {
+    const d = this.q('.divider');
+    const on = this.viewName === 'split' && !!this.canvas.width;
+    d.hidden = !on;
+    if (!on) return;
+    const value = Number(this.q('.split-at').value);
+    const f = Number(this.canvas.dataset.factor) || 1;
+    d.style.left = `${view.x + (view.scale * f * this.canvas.width * value) / 100}px`;
+    d.setAttribute('aria-valuenow', String(value));
+  }
+
   // The setting chosen in "with", or the first other one.
   other() {
     const name = this.q('.compare-with').value;
@@ -401,7 +437,7 @@ export class Pane {
       cuts: r && r.cuts ? 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.'
         : 'No cut map: it comes with a pixel-graph run. Showing the input.',
       other: theirs ? `${them}'s result, in this view (X on the view flips back and forth).` : `${them} has no result yet. Showing the input.`,
-      split: both ? `Left of the white line: Setting ${this.name}; right: ${them}. The slider moves the line.` : needBoth,
+      split: both ? `Left of the white line: Setting ${this.name}; right: ${them}. Drag the line's handle (or use the slider) to move it.` : needBoth,
       difference: both ? `Difference between Setting ${this.name} and ${them}, ${DIFFERENCE_GAIN} × brighter: black where they agree.` : needBoth,
     };
     this.q('.legend').textContent = legends[this.viewName] || '';
@@ -411,6 +447,7 @@ export class Pane {
     this.canvas.getContext('2d').putImageData(new ImageData(new Uint8ClampedArray(rgba), width, height), 0, 0);
     for (const c of [this.canvas, this.overlay]) c.dataset.factor = viewFactor;
     applyTo([this.canvas, this.overlay]);
+    this.placeDivider();
   }
 
   clearOverlay() {

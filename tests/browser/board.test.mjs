@@ -105,7 +105,41 @@ test('flip, split and difference show the two results as they are', async () => 
   }, [w, h]);
   assert.deepEqual(bad, []);
   await s.page.screenshot({ path: join(OUT, 'board-split.png') });
+
+  // The line's handle on the view: dragged to a quarter of the picture's width, the line follows
+  // (and the view does not pan); arrow keys on it move it by 1%.
+  const divider = pane(0).locator('.divider');
+  const d = await divider.boundingBox();
+  const pic = await pane(0).locator('.picture').boundingBox();
+  const before = pic;
+  await s.page.mouse.move(d.x + d.width / 2, d.y + d.height / 2);
+  await s.page.mouse.down();
+  await s.page.mouse.move(pic.x + pic.width / 4, d.y + d.height / 2, { steps: 5 });
+  await s.page.mouse.up();
+  const value = Number(await pane(0).locator('.split-at').inputValue());
+  assert.ok(Math.abs(value - 25) <= 1, `dragged to a quarter, the line is at ${value}%`);
+  assert.deepEqual(await pane(0).locator('.picture').boundingBox(), before, 'dragging the line panned the view');
+  const moved = await divider.boundingBox();
+  assert.ok(Math.abs(moved.x + moved.width / 2 - (pic.x + (pic.width * value) / 100)) <= 1.5, 'the handle sits on the line');
+  await grab(0, 'split');
+  const wrong = await s.page.evaluate(([w, h, v]) => {
+    const { A, B, split } = window;
+    const at = Math.round((w * v) / 100);
+    const errors = [];
+    for (let y = 0; y < h; y += 7) {
+      for (const x of [0, at - 1, at + 1, w - 1]) {
+        const i = (y * w + x) * 4;
+        if (split[i] !== (x < at ? A : B)[i]) { errors.push(`split at ${x},${y}`); break; }
+      }
+    }
+    return errors;
+  }, [w, h, value]);
+  assert.deepEqual(wrong, []);
+  await divider.focus();
+  await s.page.keyboard.press('ArrowRight');
+  assert.equal(Number(await pane(0).locator('.split-at').inputValue()), value + 1);
   await pane(0).locator('input[value=result]').check();
+  assert.equal(await divider.isVisible(), false);
 });
 
 test('the table under the board is what Save metrics writes', async () => {
@@ -116,6 +150,19 @@ test('the table under the board is what Save metrics writes', async () => {
   const csv = readFileSync(path, 'utf8').trim().split('\n');
   assert.deepEqual(table, csv);
   assert.ok(csv[0].includes('threshold') && csv.length === 3, csv.join('\n'));
+});
+
+test('at 1920 x 1080 the views of different methods stay in line', async () => {
+  // Pane 0 is a patch-graph setting and pane 1 a pixel-graph one: their forms wrap differently.
+  await s.page.setViewportSize({ width: 1920, height: 1080 });
+  const tops = [];
+  for (const i of [0, 1]) tops.push((await pane(i).locator('.viewport').boundingBox()).y);
+  const forms = [];
+  for (const i of [0, 1]) forms.push((await pane(i).locator('.controls').boundingBox()).height);
+  await s.page.screenshot({ path: join(OUT, 'board-1920.png') });
+  await s.page.setViewportSize({ width: 1280, height: 800 });
+  assert.notEqual(forms[0], forms[1], 'the two forms have the same height; the test shows nothing');
+  assert.ok(Math.abs(tops[0] - tops[1]) <= 1, `views at ${tops[0]} and ${tops[1]} px`);
 });
 
 test('on a phone-sized window nothing runs off the side', async () => {
