@@ -3,6 +3,7 @@
 # libraries, Debian's Chromium and playwright-core) and runs every test.
 source "$(dirname "$0")/common.sh"
 ensure_wasm_target
+bash "$ROOT/scripts/check.sh"
 ensure_python
 ensure_browser
 "$ROOT/scripts/build.sh"

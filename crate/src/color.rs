@@ -44,9 +44,9 @@ mod tests {
     #[test]
     fn opponent_matrix_is_orthonormal() {
         // Invariant: M M^T = I.
-        for a in 0..3 {
-            for b in 0..3 {
-                let dot: f32 = (0..3).map(|k| OPPONENT[a][k] * OPPONENT[b][k]).sum();
+        for (a, ra) in OPPONENT.iter().enumerate() {
+            for (b, rb) in OPPONENT.iter().enumerate() {
+                let dot: f32 = ra.iter().zip(rb).map(|(x, y)| x * y).sum();
                 let want = if a == b { 1.0 } else { 0.0 };
                 assert!((dot - want).abs() < 1e-6, "row {a} . row {b} = {dot}");
             }

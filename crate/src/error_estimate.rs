@@ -73,7 +73,11 @@ impl Probe {
             .channels
             .iter()
             .zip(signs.chunks(n))
-            .map(|(c, s)| Plane { width: c.width, height: c.height, data: c.data.iter().zip(s).map(|(v, b)| v + step * b).collect() })
+            .map(|(c, s)| Plane {
+                width: c.width,
+                height: c.height,
+                data: c.data.iter().zip(s).map(|(v, b)| v + step * b).collect(),
+            })
             .collect();
         img.with_channels(channels)
     }
@@ -141,7 +145,11 @@ impl PixelVariance {
         // its transform), not the blind level measured after the transform. Measured on 16-bit
         // frames with gain, offset and read noise given: within 0.25 dB at a peak of 300
         // photons, against 0.9-2.3 dB high with the blind level.
-        let s2 = if matches!(self.stabilisers.as_deref(), Some([Stabiliser::Photon(_), ..])) { 1.0 } else { self.sigma * self.sigma };
+        let s2 = if matches!(self.stabilisers.as_deref(), Some([Stabiliser::Photon(_), ..])) {
+            1.0
+        } else {
+            self.sigma * self.sigma
+        };
         match self.stabilisers.as_ref().and_then(|s| s.get(channel)) {
             None => s2,
             Some(st) => {
@@ -218,7 +226,8 @@ impl ErrorEstimate {
 /// smoothing can carry a result far from its pixel's value). Choosing pixels by their own noise
 /// would bias them (Stein's lemma holds given the other pixels' noise, not given one's own).
 fn near_clipped(y: &Plane, top: f64) -> Vec<bool> {
-    let cut: Vec<f32> = y.data.iter().map(|v| if f64::from(*v) <= 0.0 || f64::from(*v) >= top { 1.0 } else { 0.0 }).collect();
+    let cut: Vec<f32> =
+        y.data.iter().map(|v| if f64::from(*v) <= 0.0 || f64::from(*v) >= top { 1.0 } else { 0.0 }).collect();
     let area = ((2 * CUT_REACH + 1) * (2 * CUT_REACH + 1)) as f32;
     // Window counts (borders repeat their edge samples); 0.5 absorbs the float sums' rounding.
     box_mean(&cut, y.width, y.height, CUT_REACH).iter().zip(&cut).map(|(m, own)| m * area - own > 0.5).collect()
@@ -255,7 +264,14 @@ fn psnr(mse: f64, range: f64) -> Option<f64> {
 
 /// SURE from the input `noisy`, its result `result` = f(y) and the probe's result `probed` =
 /// f(y + step b), all in the image's grey levels; `clipped` when the model corrects clipped noise.
-pub fn estimate(noisy: &Image, result: &Image, probed: &Image, probe: &Probe, var: &PixelVariance, clipped: bool) -> ErrorEstimate {
+pub fn estimate(
+    noisy: &Image,
+    result: &Image,
+    probed: &Image,
+    probe: &Probe,
+    var: &PixelVariance,
+    clipped: bool,
+) -> ErrorEstimate {
     let range = f64::from(noisy.max_value());
     let n = noisy.width * noisy.height;
     let signs = probe.signs(n * noisy.channels.len());
@@ -330,7 +346,13 @@ mod tests {
     use crate::planes::BitDepth;
 
     fn flat(v: f32, w: usize, h: usize) -> Image {
-        Image { width: w, height: h, depth: BitDepth::Eight, channels: vec![Plane { width: w, height: h, data: vec![v; w * h] }], alpha: None }
+        Image {
+            width: w,
+            height: h,
+            depth: BitDepth::Eight,
+            channels: vec![Plane { width: w, height: h, data: vec![v; w * h] }],
+            alpha: None,
+        }
     }
 
     /// Closed form: the identity run f(y) = y has divergence N and error exactly the noise, so

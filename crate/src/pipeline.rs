@@ -2,22 +2,22 @@
 //! Works on a decoded [`Image`] and never alters it.
 
 use crate::color;
-use std::borrow::Cow;
 use crate::error::Result;
 use crate::error_estimate::{self, ErrorEstimate, PixelVariance, Probe};
 use crate::methods::{self, MethodOutput};
-use crate::patch::Group;
 use crate::metrics::{self, ResidualStats};
+use crate::noise::clip::ClipInverse;
 use crate::noise::model::{self, ChannelNoise, Dependence, NoiseReport, PlaneNoise};
 use crate::noise::nlf::NoiseLevelFunction;
-use crate::noise::clip::ClipInverse;
-use crate::noise::vst::{CurveVst, Stabiliser};
 use crate::noise::spectrum::{self, NoiseSpectrum};
+use crate::noise::vst::{CurveVst, Stabiliser};
 use crate::noise::{self, NoiseEstimate};
+use crate::patch::Group;
 use crate::planes::{Image, Plane};
 use crate::progress::{Labelled, Progress, SubProgress};
 use crate::settings::{Method, NoiseModel, Settings, Sigma};
 use serde::Serialize;
+use std::borrow::Cow;
 
 #[derive(Clone, Debug, Serialize)]
 pub struct RunReport {
@@ -91,7 +91,11 @@ impl Prepared<'_> {
 }
 
 fn opponent_if_colour(planes: &[Plane]) -> Vec<Plane> {
-    if planes.len() == 3 { color::to_opponent(planes) } else { planes.to_vec() }
+    if planes.len() == 3 {
+        color::to_opponent(planes)
+    } else {
+        planes.to_vec()
+    }
 }
 
 /// Spectra of the method planes at the patch side the run will use, when the noise is correlated
@@ -171,15 +175,23 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         Some(sp) if sp.is_coloured() => sp.pixel_variance().sqrt(),
         _ => noise::estimate(c, Some(top)).chosen(),
     };
-    let levels: Vec<f64> =
-        if fitting && img.channels.len() == 3 { img.channels.iter().map(channel_level).collect() } else { vec![1.0; img.channels.len()] };
+    let levels: Vec<f64> = if fitting && img.channels.len() == 3 {
+        img.channels.iter().map(channel_level).collect()
+    } else {
+        vec![1.0; img.channels.len()]
+    };
     let mean_channel = levels.iter().sum::<f64>() / levels.len().max(1) as f64;
-    let spread = levels.iter().copied().fold(0.0, f64::max) / levels.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12);
+    let spread =
+        levels.iter().copied().fold(0.0, f64::max) / levels.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12);
     let scaled = fitting && dependence == Dependence::None && levels.len() == 3 && spread > CHANNEL_SPREAD;
     let stabilisers: Option<Vec<Stabiliser>> = match dependence {
-        Dependence::None if scaled => Some(levels.iter().map(|l| Stabiliser::Scale(mean_channel / l.max(1e-12))).collect()),
+        Dependence::None if scaled => {
+            Some(levels.iter().map(|l| Stabiliser::Scale(mean_channel / l.max(1e-12))).collect())
+        }
         Dependence::None => None,
-        Dependence::Photon => Some(channels.iter().filter_map(|c| c.photon.map(|p| Stabiliser::Photon(p.noise()))).collect()),
+        Dependence::Photon => {
+            Some(channels.iter().filter_map(|c| c.photon.map(|p| Stabiliser::Photon(p.noise()))).collect())
+        }
         Dependence::Curve => Some(
             channels
                 .iter()
@@ -278,7 +290,12 @@ pub fn method_planes(p: &Prepared) -> Vec<Plane> {
 }
 
 /// The settings' method on method planes, with the prepared sigma, range and noise spectra.
-pub fn run_method(planes_in: &[Plane], prepared: &Prepared, settings: &Settings, progress: &dyn Progress) -> Result<MethodOutput> {
+pub fn run_method(
+    planes_in: &[Plane],
+    prepared: &Prepared,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<MethodOutput> {
     let (sigma, range) = (prepared.sigma, prepared.range);
     match settings.method {
         Method::PixelGraph => methods::pixel_graph::denoise(planes_in, sigma, range, &settings.pixel_graph, progress),
@@ -338,7 +355,12 @@ pub fn probe_planes(img: &Image, prepared: &Prepared) -> Option<Vec<Plane>> {
 }
 
 /// The error estimate from a run's method planes and the probe pass's (None: not applicable).
-pub fn estimate_error(img: &Image, prepared: &Prepared, result: Vec<Plane>, probed: Option<Vec<Plane>>) -> ErrorEstimate {
+pub fn estimate_error(
+    img: &Image,
+    prepared: &Prepared,
+    result: Vec<Plane>,
+    probed: Option<Vec<Plane>>,
+) -> ErrorEstimate {
     let top = f64::from(img.max_value());
     // The same check as before the pass (one box filter per channel), so the page's split run and
     // the one-call run give the same answer.
@@ -352,12 +374,20 @@ pub fn estimate_error(img: &Image, prepared: &Prepared, result: Vec<Plane>, prob
     let probed = img.with_channels(prepared.image_planes(probed));
     let var = PixelVariance::of(prepared, top);
     let e = error_estimate::estimate(img, &result, &probed, &Probe::for_run(prepared), &var, prepared.clip.is_some());
-    if prepared.estimated { e.for_estimated_level() } else { e }
+    if prepared.estimated {
+        e.for_estimated_level()
+    } else {
+        e
+    }
 }
 
 /// Colour planes from a method's planes (opponent back to RGB; grey planes as they are).
 fn colour_back(planes: Vec<Plane>) -> Vec<Plane> {
-    if planes.len() == 3 { color::from_opponent(&planes) } else { planes }
+    if planes.len() == 3 {
+        color::from_opponent(&planes)
+    } else {
+        planes
+    }
 }
 
 /// Working-domain channel planes back to the image's grey levels: the stabiliser's inverse, then
@@ -422,7 +452,11 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
 /// used, or for photon noise, whose sigma lives in the stabilised domain, the input's own blind
 /// estimate.
 pub fn residual_view_sigma(img: &Image, report: &RunReport) -> f64 {
-    if report.stabilised { blind_sigma(&estimate_noise(img)) } else { report.sigma_used }
+    if report.stabilised {
+        blind_sigma(&estimate_noise(img))
+    } else {
+        report.sigma_used
+    }
 }
 
 /// Inspection: the patch group around pixel (x, y) exactly as a patch-graph run would match it

@@ -108,18 +108,6 @@ impl Image {
     }
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn mirror_matches_half_sample_symmetric_convention() {
-        // Convention of scipy.ndimage mode='reflect' (d c b a | a b c d | d c b a).
-        let got: Vec<usize> = (-3..7).map(|i| mirror(i, 4)).collect();
-        assert_eq!(got, vec![2, 1, 0, 0, 1, 2, 3, 3, 2, 1]);
-    }
-}
-
 /// Mean of `src` over a (2pr+1)^2 window, borders clamped; separable running sums, O(1) per pixel.
 pub fn box_mean(src: &[f32], w: usize, h: usize, pr: usize) -> Vec<f32> {
     if pr == 0 {
@@ -206,4 +194,16 @@ pub fn gaussian_blur(p: &Plane, s: f64) -> Plane {
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn mirror_matches_half_sample_symmetric_convention() {
+        // Convention of scipy.ndimage mode='reflect' (d c b a | a b c d | d c b a).
+        let got: Vec<usize> = (-3..7).map(|i| mirror(i, 4)).collect();
+        assert_eq!(got, vec![2, 1, 0, 0, 1, 2, 3, 3, 2, 1]);
+    }
 }

@@ -46,7 +46,11 @@ pub fn map(noisy: &Image, result: &Image, sigma: f64) -> Plane {
             let cov = f64::from(mrd[i]) - mr * md;
             let vr = f64::from(mrr[i]) - mr * mr;
             let vd = f64::from(mdd[i]) - md * md;
-            if vd <= min_var || vr <= 1e-6 || vd <= 1e-6 { 0.0 } else { (cov / (vr * vd).sqrt()).clamp(-1.0, 1.0) as f32 }
+            if vd <= min_var || vr <= 1e-6 || vd <= 1e-6 {
+                0.0
+            } else {
+                (cov / (vr * vd).sqrt()).clamp(-1.0, 1.0) as f32
+            }
         })
         .collect();
     Plane { width: w, height: h, data }
@@ -74,14 +78,26 @@ mod tests {
     #[test]
     fn noise_removal_is_not_flagged_and_removed_stripes_are() {
         let (w, h) = (96, 96);
-        let clean = Plane::from_fn(w, h, |x, y| if y >= h / 2 { 120.0 } else if (x / 3) % 2 == 0 { 80.0 } else { 160.0 });
+        let clean = Plane::from_fn(w, h, |x, y| {
+            if y >= h / 2 {
+                120.0
+            } else if (x / 3) % 2 == 0 {
+                80.0
+            } else {
+                160.0
+            }
+        });
         let mut rng = Rng::new(9);
-        let noisy = Plane { data: clean.data.iter().map(|v| v + (10.0 * rng.normal()) as f32).collect(), ..clean.clone() };
+        let noisy =
+            Plane { data: clean.data.iter().map(|v| v + (10.0 * rng.normal()) as f32).collect(), ..clean.clone() };
         let share = |result: Plane| flagged_share(&map(&grey(noisy.clone()), &grey(result), 10.0));
         let good = share(clean.clone());
         let blurred = share(gaussian_blur(&clean, 1.2));
         // A result that kept 30% of the noise: its leftover is not structure.
-        let leftover = share(Plane { data: clean.data.iter().zip(&noisy.data).map(|(c, y)| c + 0.3 * (y - c)).collect(), ..clean.clone() });
+        let leftover = share(Plane {
+            data: clean.data.iter().zip(&noisy.data).map(|(c, y)| c + 0.3 * (y - c)).collect(),
+            ..clean.clone()
+        });
         assert!(good < 0.02, "pure-noise residual flagged on {good}");
         assert!(leftover < 0.02, "leftover noise flagged on {leftover}");
         assert!(blurred > 0.4, "removed stripes flagged on only {blurred}");

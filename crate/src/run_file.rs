@@ -36,17 +36,27 @@ pub fn in_working_units(s: &Settings, map: ValueMap) -> Settings {
 
 /// With `estimate_error`, each unit's report carries its error estimate (one more pass per unit),
 /// in the file's own units.
-pub fn denoise_file(doc: &Document, settings: &Settings, estimate_error: bool, progress: &dyn Progress) -> Result<FileRun> {
+pub fn denoise_file(
+    doc: &Document,
+    settings: &Settings,
+    estimate_error: bool,
+    progress: &dyn Progress,
+) -> Result<FileRun> {
     let n = doc.units();
     let mut out = doc.clone();
     let mut reports = Vec::with_capacity(n);
     let mut cut_map = None;
     for k in 0..n {
-        let sub = Labelled { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
+        let sub =
+            Labelled { parent: progress, start: k as f32 / n as f32, span: 1.0 / n as f32, label: doc.unit_label(k) };
         let img = doc.unit(k)?;
         let map = doc.unit_map(k);
         let working = in_working_units(settings, map);
-        let mut run = if estimate_error { pipeline::denoise_estimated(&img, &working, &sub)? } else { pipeline::denoise(&img, &working, &sub)? };
+        let mut run = if estimate_error {
+            pipeline::denoise_estimated(&img, &working, &sub)?
+        } else {
+            pipeline::denoise(&img, &working, &sub)?
+        };
         if let Some(e) = run.report.error_estimate.as_mut() {
             e.in_units(map.scale);
         }

@@ -317,7 +317,10 @@ mod tests {
         let s = Settings::from_json(r#"{"version": 1, "sigma": 7}"#).unwrap();
         assert_eq!((s.version, s.noise, s.sigma), (2, NoiseModel::Gaussian, Sigma::Value(7.0)));
         let s = Settings::from_json(r#"{"version": 1, "noise": "poisson", "poisson_gain": 256}"#).unwrap();
-        assert_eq!((s.noise, s.gain, s.read_noise, s.offset), (NoiseModel::Poisson, AutoOr::Value(256.0), AutoOr::Value(0.0), AutoOr::Value(0.0)));
+        assert_eq!(
+            (s.noise, s.gain, s.read_noise, s.offset),
+            (NoiseModel::Poisson, AutoOr::Value(256.0), AutoOr::Value(0.0), AutoOr::Value(0.0))
+        );
         assert_eq!(Settings::default().noise, NoiseModel::Auto);
         let s = Settings::from_json(r#"{"noise": "poisson", "poisson_gain": 4}"#).unwrap();
         assert_eq!((s.gain, s.offset), (AutoOr::Value(4.0), AutoOr::Value(0.0)));

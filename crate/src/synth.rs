@@ -68,7 +68,9 @@ pub fn exp_same_everywhere(x: f64) -> f64 {
     }
     // ln 2 split in two (fdlibm's constants; the high part has trailing zero bits, so k * HI is
     // exact) to keep the reduction accurate for large |k|.
+    #[allow(clippy::excessive_precision)] // the published digits, kept as published
     const LN2_HI: f64 = 6.931_471_803_691_238_164_90e-1;
+    #[allow(clippy::excessive_precision)]
     const LN2_LO: f64 = 1.908_214_929_270_587_700_02e-10;
     let k = (x / std::f64::consts::LN_2).round();
     let r = (x - k * LN2_HI) - k * LN2_LO;

@@ -19,7 +19,9 @@ fn js_err(e: Error) -> JsError {
 }
 
 fn set(obj: &Object, key: &str, value: &JsValue) -> Result<(), JsError> {
-    Reflect::set(obj, &JsValue::from_str(key), value).map(|_| ()).map_err(|_| JsError::new("could not build the result object"))
+    Reflect::set(obj, &JsValue::from_str(key), value)
+        .map(|_| ())
+        .map_err(|_| JsError::new("could not build the result object"))
 }
 
 fn bytes(v: &[u8]) -> JsValue {
@@ -41,7 +43,8 @@ fn planes_from(arrays: &Array, width: usize, height: usize) -> Result<Vec<Plane>
     arrays
         .iter()
         .map(|a| {
-            let a: Float32Array = a.dyn_into().map_err(|_| JsError::new("a plane sent to the worker is not a Float32Array"))?;
+            let a: Float32Array =
+                a.dyn_into().map_err(|_| JsError::new("a plane sent to the worker is not a Float32Array"))?;
             if a.length() as usize != width * height {
                 return Err(JsError::new("the planes sent to the worker do not match the image size"));
             }
@@ -53,7 +56,7 @@ fn planes_from(arrays: &Array, width: usize, height: usize) -> Result<Vec<Plane>
 /// Splits an array of whole planes of `width` x `height`; the length must fit exactly.
 fn unflatten(data: &[f32], width: usize, height: usize) -> Result<Vec<Plane>, JsError> {
     let n = width * height;
-    if n == 0 || data.len() % n != 0 || data.is_empty() {
+    if n == 0 || !data.len().is_multiple_of(n) || data.is_empty() {
         return Err(JsError::new("the planes sent to the worker do not match the image size"));
     }
     Ok(data.chunks(n).map(|c| Plane { width, height, data: c.to_vec() }).collect())
@@ -87,12 +90,17 @@ fn decode(input: &[u8], max_megapixels: u32) -> Result<Image, JsError> {
 
 /// A run's result as a file: the input's format (PNG for JPEG and BMP), its metadata, and the
 /// program and settings recorded.
-fn result_file(input: &[u8], max_megapixels: u32, result: &Image, settings: &Settings) -> Result<(Vec<u8>, Format), JsError> {
+fn result_file(
+    input: &[u8],
+    max_megapixels: u32,
+    result: &Image,
+    settings: &Settings,
+) -> Result<(Vec<u8>, Format), JsError> {
     let doc = decode_file(input, max_megapixels)?;
     let mut out = doc.unit_document(0).map_err(js_err)?;
     out.set_unit(0, result.clone()).map_err(js_err)?;
     let format = doc.result_format();
-    let provenance = Provenance::of(&settings);
+    let provenance = Provenance::of(settings);
     Ok((file::encode(&out, format, Some(&provenance)).map_err(js_err)?, format))
 }
 
@@ -181,7 +189,13 @@ fn set_view_size(obj: &Object, img: &Image) -> Result<usize, JsError> {
 
 /// What the page gets from a finished run: the result file (full depth, the input's format and
 /// metadata), views, report.
-fn run_result(input: &[u8], max_megapixels: u32, settings: &Settings, img: &Image, run: &RunOutput) -> Result<JsValue, JsError> {
+fn run_result(
+    input: &[u8],
+    max_megapixels: u32,
+    settings: &Settings,
+    img: &Image,
+    run: &RunOutput,
+) -> Result<JsValue, JsError> {
     let (result, format) = result_file(input, max_megapixels, &run.image, settings)?;
     let obj = Object::new();
     let f = set_view_size(&obj, img)?;
@@ -207,7 +221,13 @@ fn run_result(input: &[u8], max_megapixels: u32, settings: &Settings, img: &Imag
 /// One run: the result as PNG at the input's depth, RGBA views (result, residual, cut map) and
 /// the run report as JSON; with `estimate`, a second pass and the error estimate in the report.
 #[wasm_bindgen]
-pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progress: &Function, estimate: bool) -> Result<JsValue, JsError> {
+pub fn denoise(
+    input: &[u8],
+    settings_json: &str,
+    max_megapixels: u32,
+    on_progress: &Function,
+    estimate: bool,
+) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let pixels = img.width * img.height;
@@ -220,7 +240,11 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
         )));
     }
     let progress = JsProgress(on_progress);
-    let run = if estimate { pipeline::denoise_estimated(&img, &settings, &progress) } else { pipeline::denoise(&img, &settings, &progress) };
+    let run = if estimate {
+        pipeline::denoise_estimated(&img, &settings, &progress)
+    } else {
+        pipeline::denoise(&img, &settings, &progress)
+    };
     run_result(input, max_megapixels, &settings, &img, &run.map_err(js_err)?)
 }
 
@@ -230,7 +254,13 @@ pub fn denoise(input: &[u8], settings_json: &str, max_megapixels: u32, on_progre
 /// is nothing to remove (sigma 0). With `probe`, the planes are the error estimate's second
 /// input (the image plus the probe, under the model fitted on the image).
 #[wasm_bindgen(js_name = prepareRun)]
-pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_rows: u32, probe: bool) -> Result<JsValue, JsError> {
+pub fn prepare_run(
+    input: &[u8],
+    settings_json: &str,
+    max_megapixels: u32,
+    band_rows: u32,
+    probe: bool,
+) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
@@ -258,7 +288,11 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, band_
     set(&obj, "planes", &plane_arrays(&planes).into())?;
     set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| JsError::new(&e.to_string()))?))?;
     // Correlated noise: the spectra every band needs, as JSON ("null" for white noise).
-    set(&obj, "spectra", &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| JsError::new(&e.to_string()))?))?;
+    set(
+        &obj,
+        "spectra",
+        &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| JsError::new(&e.to_string()))?),
+    )?;
     Ok(obj.into())
 }
 
@@ -287,8 +321,8 @@ pub fn run_band(
     let (w, rows) = (width as usize, band.y1 - band.y0);
     let noisy = unflatten(noisy, w, rows)?;
     let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
-    let spectra: Option<Vec<NoiseSpectrum>> =
-        serde_json::from_str(spectra).map_err(|_| JsError::new("the noise spectra sent to the worker are not valid"))?;
+    let spectra: Option<Vec<NoiseSpectrum>> = serde_json::from_str(spectra)
+        .map_err(|_| JsError::new("the noise spectra sent to the worker are not valid"))?;
     let stage = Stage::new(
         &noisy,
         basic.as_deref(),
@@ -326,7 +360,13 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
 /// The error estimate (JSON) from a split run's method planes and its probe pass's
 /// ([`prepare_run`] with `probe`).
 #[wasm_bindgen(js_name = estimateError)]
-pub fn estimate_error(input: &[u8], settings_json: &str, result: &Array, probe: &Array, max_megapixels: u32) -> Result<String, JsError> {
+pub fn estimate_error(
+    input: &[u8],
+    settings_json: &str,
+    result: &Array,
+    probe: &Array,
+    max_megapixels: u32,
+) -> Result<String, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
@@ -347,7 +387,8 @@ pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<String,
     let a = decode_file(clean, max_megapixels)?;
     let b = decode_file(test, max_megapixels)?;
     // The result in the reference's value map (float files are each scaled by their own range).
-    let q = metrics::compare(&a.unit(0).map_err(js_err)?, &b.unit_in(0, a.unit_map(0)).map_err(js_err)?).map_err(js_err)?;
+    let q =
+        metrics::compare(&a.unit(0).map_err(js_err)?, &b.unit_in(0, a.unit_map(0)).map_err(js_err)?).map_err(js_err)?;
     serde_json::to_string(&q).map_err(|e| JsError::new(&e.to_string()))
 }
 
@@ -374,7 +415,12 @@ pub fn unit_file(input: &[u8], k: u32, max_megapixels: u32) -> Result<Uint8Array
 /// The whole file again with every image replaced by its result (`results`: one result file per
 /// image, in order), in the input's format with its metadata; {file, extension}.
 #[wasm_bindgen(js_name = assembleFile)]
-pub fn assemble_file(input: &[u8], results: &Array, settings_json: &str, max_megapixels: u32) -> Result<JsValue, JsError> {
+pub fn assemble_file(
+    input: &[u8],
+    results: &Array,
+    settings_json: &str,
+    max_megapixels: u32,
+) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let mut doc = decode_file(input, max_megapixels)?;
     if results.length() as usize != doc.units() {

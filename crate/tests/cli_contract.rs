@@ -27,12 +27,22 @@ fn write_png(dir: &Path, name: &str, depth: u32, color: bool) -> PathBuf {
     let channels = if color { vec![plane(0), plane(1), plane(2)] } else { vec![plane(0)] };
     let img = Image { width: 64, height: 48, depth, channels, alpha: None };
     let path = dir.join(name);
-    std::fs::write(&path, patchgraph::file::encode(&patchgraph::file::document_of(img, patchgraph::file::Format::Png), patchgraph::file::Format::Png, None).unwrap()).unwrap();
+    std::fs::write(
+        &path,
+        patchgraph::file::encode(
+            &patchgraph::file::document_of(img, patchgraph::file::Format::Png),
+            patchgraph::file::Format::Png,
+            None,
+        )
+        .unwrap(),
+    )
+    .unwrap();
     path
 }
 
 fn files_in(dir: &Path) -> Vec<String> {
-    let mut v: Vec<String> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+    let mut v: Vec<String> =
+        std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
     v.sort();
     v
 }
@@ -70,12 +80,8 @@ fn every_bad_input_exits_2_with_one_line_and_no_output() {
         assert!(!err.contains("panicked"), "{name}: {err}");
         assert!(!out.exists(), "{name}: an output file was left behind");
     }
-    let flag_cases: [&[&str]; 4] = [
-        &["--sigma", "-3"],
-        &["--method", "unknown-method"],
-        &["--sigma", "lots"],
-        &["--noise", "speckle"],
-    ];
+    let flag_cases: [&[&str]; 4] =
+        [&["--sigma", "-3"], &["--method", "unknown-method"], &["--sigma", "lots"], &["--noise", "speckle"]];
     for args in flag_cases {
         let out = d.join("flag-out.png");
         let mut all = vec!["denoise", good.to_str().unwrap(), "-o", out.to_str().unwrap()];
@@ -114,7 +120,8 @@ fn denoise_keeps_depth_and_channels_and_prints_json() {
         assert_eq!(v["bit_depth"], depth);
         assert_eq!(v["channels"], if color { 3 } else { 1 });
         assert!(v["sigma"].as_f64().unwrap() >= 0.0);
-        let back = patchgraph::file::decode(&std::fs::read(&out).unwrap(), &Default::default()).unwrap().unit(0).unwrap();
+        let back =
+            patchgraph::file::decode(&std::fs::read(&out).unwrap(), &Default::default()).unwrap().unit(0).unwrap();
         assert_eq!(back.depth.bits(), depth);
         assert_eq!(back.channels.len(), if color { 3 } else { 1 });
     }
@@ -145,15 +152,18 @@ fn a_settings_file_is_read_and_flags_override_it() {
     let s = dir.path().join("s.json");
     std::fs::write(&s, r#"{"sigma": 7.5, "pixel_graph": {"filter": "heat"}}"#).unwrap();
     let out = dir.path().join("o.png");
-    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--json"]);
-    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let (a, out, s) = (a.to_str().unwrap(), out.to_str().unwrap(), s.to_str().unwrap());
+    let report = |extra: &[&str]| -> serde_json::Value {
+        let args = [&["denoise", a, "-o", out, "--settings", s, "--json"][..], extra].concat();
+        serde_json::from_slice(&run(&args).stdout).unwrap()
+    };
+    let v = report(&[]);
     assert_eq!(v["sigma"].as_f64(), Some(7.5));
     assert_eq!(v["settings"]["pixel_graph"]["filter"], "heat");
-    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--sigma", "3", "--json"]);
-    let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = report(&["--sigma", "3"]);
     assert_eq!(v["sigma"].as_f64(), Some(3.0));
-    std::fs::write(&s, r#"{"pixel_graph": {"radius": 9}}"#).unwrap();
-    let o = run(&["denoise", a.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap()]);
+    std::fs::write(s, r#"{"pixel_graph": {"radius": 9}}"#).unwrap();
+    let o = run(&["denoise", a, "-o", out, "--settings", s]);
     assert_eq!(o.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&o.stderr).contains("pixel_graph.radius must be between 1 and 3, got 9"));
 }
@@ -172,7 +182,15 @@ fn batch_keeps_going_past_a_bad_file_and_reports_it() {
     let s = dir.path().join("s.json");
     std::fs::write(&s, r#"{"method": "pixel-graph"}"#).unwrap();
     let out = dir.path().join("out");
-    let o = run(&["batch", input.to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--json"]);
+    let o = run(&[
+        "batch",
+        input.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+        "--settings",
+        s.to_str().unwrap(),
+        "--json",
+    ]);
     assert_eq!(o.status.code(), Some(2), "{}", String::from_utf8_lossy(&o.stderr));
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert_eq!(v["done"], 4);
@@ -184,7 +202,8 @@ fn batch_keeps_going_past_a_bad_file_and_reports_it() {
     for i in 0..4 {
         let alone = dir.path().join(format!("alone{i}.png"));
         let src = input.join(format!("good{i}.png"));
-        let o = run(&["denoise", src.to_str().unwrap(), "-o", alone.to_str().unwrap(), "--settings", s.to_str().unwrap()]);
+        let o =
+            run(&["denoise", src.to_str().unwrap(), "-o", alone.to_str().unwrap(), "--settings", s.to_str().unwrap()]);
         assert!(o.status.success());
         assert_eq!(std::fs::read(&alone).unwrap(), std::fs::read(out.join(format!("good{i}.png"))).unwrap(), "good{i}");
     }
@@ -209,12 +228,22 @@ fn shards_split_the_file_list_without_overlap() {
     for k in 1..=2 {
         let out = dir.path().join(format!("out{k}"));
         let shard = format!("{k}/2");
-        let o = run(&["batch", dir.path().to_str().unwrap(), "-o", out.to_str().unwrap(), "--settings", s.to_str().unwrap(), "--shard", &shard]);
+        let o = run(&[
+            "batch",
+            dir.path().to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--settings",
+            s.to_str().unwrap(),
+            "--shard",
+            &shard,
+        ]);
         assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
         seen.extend(files_in(&out).into_iter().filter(|n| n.ends_with(".png")));
     }
     seen.sort();
     assert_eq!(seen, vec!["f0.png", "f1.png", "f2.png", "f3.png", "f4.png"]);
-    let o = run(&["batch", dir.path().to_str().unwrap(), "-o", "x", "--settings", s.to_str().unwrap(), "--shard", "3/2"]);
+    let o =
+        run(&["batch", dir.path().to_str().unwrap(), "-o", "x", "--settings", s.to_str().unwrap(), "--shard", "3/2"]);
     assert_eq!(o.status.code(), Some(2));
 }

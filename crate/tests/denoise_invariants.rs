@@ -61,7 +61,8 @@ fn an_edge_between_flat_regions_is_not_blurred_across() {
         let step = col_mean(w / 2) - col_mean(w / 2 - 1);
         assert!(step > 95.0, "{filter:?}: step across the edge shrank to {step}");
         // And the flat sides really were smoothed (the noise std of 5 went down).
-        let side: Vec<f64> = (0..h).flat_map(|y| (4..w / 2 - 4).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
+        let side: Vec<f64> =
+            (0..h).flat_map(|y| (4..w / 2 - 4).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
         let m = side.iter().sum::<f64>() / side.len() as f64;
         let sd = (side.iter().map(|v| (v - m).powi(2)).sum::<f64>() / side.len() as f64).sqrt();
         assert!(sd < 3.0, "{filter:?}: flat side std {sd}");
@@ -114,7 +115,11 @@ fn patch_graph_tiles_give_the_one_pass_result() {
     let (w, h) = (70usize, 53usize);
     let n = noise(w * h * 3, 12.0, 21);
     let ch = |k: usize| {
-        Plane::from_fn(w, h, |x, y| if (x / 9 + y / 7) % 2 == 0 { 80.0 } else { 150.0 } + 10.0 * k as f32 + n[k * w * h + y * w + x])
+        Plane::from_fn(
+            w,
+            h,
+            |x, y| if (x / 9 + y / 7) % 2 == 0 { 80.0 } else { 150.0 } + 10.0 * k as f32 + n[k * w * h + y * w + x],
+        )
     };
     let img = Image { width: w, height: h, depth: BitDepth::Eight, channels: vec![ch(0), ch(1), ch(2)], alpha: None };
     let one = pipeline::denoise(&img, &patch(12.0, 4096), &NoProgress).unwrap();
@@ -135,7 +140,8 @@ fn patch_graph_removes_noise_and_keeps_the_step() {
     let d = &out.image.channels[0];
     let col_mean = |x: usize| (0..h).map(|y| f64::from(d.get(x, y))).sum::<f64>() / h as f64;
     assert!(col_mean(w / 2) - col_mean(w / 2 - 1) > 95.0);
-    let side: Vec<f64> = (0..h).flat_map(|y| (2..w / 2 - 2).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
+    let side: Vec<f64> =
+        (0..h).flat_map(|y| (2..w / 2 - 2).map(move |x| (x, y))).map(|(x, y)| f64::from(d.get(x, y))).collect();
     let m = side.iter().sum::<f64>() / side.len() as f64;
     let sd = (side.iter().map(|v| (v - m).powi(2)).sum::<f64>() / side.len() as f64).sqrt();
     assert!(sd < 4.0, "flat side std {sd} (noise was 10)");
@@ -216,12 +222,22 @@ fn clipped_colour_with_a_given_sigma_keeps_every_channel() {
     // Invariant: the output has the input's channels, also when the clipped-noise correction runs
     // without a fit (sigma given) on a colour image whose dark half clips at 0.
     let mut r = patchgraph::synth::Rng::new(4);
-    let mut ch = || Plane::from_fn(64, 48, |x, _| (if x < 32 { 0.0 } else { 150.0 } + 20.0 * r.normal()).clamp(0.0, 255.0).round() as f32);
+    let mut ch = || {
+        Plane::from_fn(64, 48, |x, _| {
+            (if x < 32 { 0.0 } else { 150.0 } + 20.0 * r.normal()).clamp(0.0, 255.0).round() as f32
+        })
+    };
     let img = Image { width: 64, height: 48, depth: BitDepth::Eight, channels: vec![ch(), ch(), ch()], alpha: None };
     let out = pipeline::denoise(&img, &patch(20.0, 64), &NoProgress).unwrap();
     assert_eq!(out.image.channels.len(), 3);
     assert!(out.report.noise.clip_corrected);
     // The dark half's mean comes back near its true 0 (the clipped noise alone averages 8).
-    let dark: f64 = out.image.channels.iter().map(|c| (0..48).flat_map(|y| (0..28).map(move |x| (x, y))).map(|(x, y)| f64::from(c.get(x, y))).sum::<f64>()).sum::<f64>() / (3.0 * 48.0 * 28.0);
+    let dark: f64 = out
+        .image
+        .channels
+        .iter()
+        .map(|c| (0..48).flat_map(|y| (0..28).map(move |x| (x, y))).map(|(x, y)| f64::from(c.get(x, y))).sum::<f64>())
+        .sum::<f64>()
+        / (3.0 * 48.0 * 28.0);
     assert!(dark < 4.0, "{dark}");
 }

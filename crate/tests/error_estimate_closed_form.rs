@@ -13,7 +13,13 @@ const W: usize = 16;
 const H: usize = 12;
 
 fn image(data: Vec<f32>) -> Image {
-    Image { width: W, height: H, depth: BitDepth::Eight, channels: vec![Plane { width: W, height: H, data }], alpha: None }
+    Image {
+        width: W,
+        height: H,
+        depth: BitDepth::Eight,
+        channels: vec![Plane { width: W, height: H, data }],
+        alpha: None,
+    }
 }
 
 /// The filter's matrix: (I + gamma L)^-1 for the grid graph of a two-level guide.
@@ -47,10 +53,15 @@ fn monte_carlo_divergence_of_a_linear_filter_is_its_trace() {
     let trace = a.trace();
     // Hutchinson's estimator with +-1 probes: variance 2 sum_{i != j} A_ij^2 (closed form for a
     // symmetric A), per probe.
-    let off: f64 = (0..W * H).flat_map(|i| (0..W * H).map(move |j| (i, j))).filter(|(i, j)| i != j).map(|(i, j)| a[(i, j)].powi(2)).sum();
+    let off: f64 = (0..W * H)
+        .flat_map(|i| (0..W * H).map(move |j| (i, j)))
+        .filter(|(i, j)| i != j)
+        .map(|(i, j)| a[(i, j)].powi(2))
+        .sum();
     let probe_std = (2.0 * off).sqrt();
     let mut rng = Rng::new(4);
-    let noisy = image((0..W * H).map(|i| (if i % W < W / 2 { 60.0 } else { 170.0 }) + (sigma * rng.normal()) as f32).collect());
+    let noisy =
+        image((0..W * H).map(|i| (if i % W < W / 2 { 60.0 } else { 170.0 }) + (sigma * rng.normal()) as f32).collect());
     let result = apply(&a, &noisy);
     let var = PixelVariance::white(sigma, 255.0);
     let runs = 64;
@@ -61,12 +72,16 @@ fn monte_carlo_divergence_of_a_linear_filter_is_its_trace() {
         let divergence = e.kept_noise.unwrap() * n;
         // SURE for a linear run in closed form: ||Ay - y||^2 - N sigma^2 + 2 sigma^2 tr(A); one
         // probe's estimate lies within 4 of its standard deviations of it.
-        let residual: f64 = result.channels[0].data.iter().zip(&noisy.channels[0].data).map(|(f, y)| f64::from(f - y).powi(2)).sum();
+        let residual: f64 =
+            result.channels[0].data.iter().zip(&noisy.channels[0].data).map(|(f, y)| f64::from(f - y).powi(2)).sum();
         let exact = (residual - n * sigma * sigma + 2.0 * sigma * sigma * trace) / n;
         let tolerance = 4.0 * 2.0 * sigma * sigma * probe_std / n + 1e-3;
         assert!((e.mse.unwrap() - exact).abs() < tolerance, "seed {seed}: {} vs {exact}", e.mse.unwrap());
         sum += divergence;
     }
     let mean = sum / runs as f64;
-    assert!((mean - trace).abs() < 4.0 * probe_std / (runs as f64).sqrt(), "mean divergence {mean}, trace {trace}, probe std {probe_std}");
+    assert!(
+        (mean - trace).abs() < 4.0 * probe_std / (runs as f64).sqrt(),
+        "mean divergence {mean}, trace {trace}, probe std {probe_std}"
+    );
 }

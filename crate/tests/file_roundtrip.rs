@@ -19,7 +19,9 @@ mod common;
 fn image(depth: BitDepth, color: usize, alpha: bool) -> Image {
     let max = depth.max_value();
     let (w, h) = (13usize, 9usize);
-    let channels = (0..color).map(|c| Plane::from_fn(w, h, |x, y| ((x * 31 + y * 17 + c * 50) as f32 * 97.0) % (max + 1.0))).collect();
+    let channels = (0..color)
+        .map(|c| Plane::from_fn(w, h, |x, y| ((x * 31 + y * 17 + c * 50) as f32 * 97.0) % (max + 1.0)))
+        .collect();
     let alpha = alpha.then(|| match depth {
         BitDepth::Eight => Alpha::Eight((0..w * h).map(|i| (i * 7 % 256) as u8).collect()),
         BitDepth::Sixteen => Alpha::Sixteen((0..w * h).map(|i| (i * 4099 % 65536) as u16).collect()),
@@ -99,9 +101,19 @@ fn stored(doc: &Document) -> Vec<Samples> {
     doc.pages.iter().map(|p| patchgraph::file::samples::from_working(p, doc.layout, doc.sample, f64::NAN)).collect()
 }
 
+const ALL_TYPES: [SampleType; 7] = [
+    SampleType::U8,
+    SampleType::U16,
+    SampleType::I16,
+    SampleType::U32,
+    SampleType::I32,
+    SampleType::F32,
+    SampleType::F64,
+];
+
 #[test]
 fn tiff_stacks_of_every_type_and_layout_round_trip_exactly() {
-    for t in [SampleType::U8, SampleType::U16, SampleType::I16, SampleType::U32, SampleType::I32, SampleType::F32, SampleType::F64] {
+    for t in ALL_TYPES {
         for layout in [Layout::Grey, Layout::Rgb, Layout::Bands(2), Layout::Bands(5)] {
             let doc = stack(t, layout, 3);
             let bytes = file::encode(&doc, Format::Tiff, None).unwrap();
@@ -114,7 +126,7 @@ fn tiff_stacks_of_every_type_and_layout_round_trip_exactly() {
 
 #[test]
 fn fits_cubes_of_every_type_round_trip_exactly() {
-    for t in [SampleType::U8, SampleType::U16, SampleType::I16, SampleType::U32, SampleType::I32, SampleType::F32, SampleType::F64] {
+    for t in ALL_TYPES {
         let doc = stack(t, Layout::Grey, 4);
         let bytes = file::encode(&doc, Format::Fits, None).unwrap();
         let back = file::decode(&bytes, &DecodeLimits::default()).unwrap();
@@ -134,7 +146,9 @@ fn a_format_that_cannot_hold_the_file_names_one_that_can() {
 #[test]
 fn a_unit_written_alone_reads_back_to_the_same_working_image() {
     // What the page relies on: each slice or band is shipped to a worker as its own file.
-    for (t, layout) in [(SampleType::F32, Layout::Bands(3)), (SampleType::I32, Layout::Grey), (SampleType::U16, Layout::Rgb)] {
+    for (t, layout) in
+        [(SampleType::F32, Layout::Bands(3)), (SampleType::I32, Layout::Grey), (SampleType::U16, Layout::Rgb)]
+    {
         let doc = stack(t, layout, 2);
         for k in 0..doc.units() {
             let alone = file::encode(&doc.unit_document(k).unwrap(), Format::Tiff, None).unwrap();
@@ -155,7 +169,14 @@ fn readme_rows() -> String {
         .iter()
         .map(|f| {
             let samples: Vec<&str> = f.samples.iter().map(|s| s.describe()).collect();
-            format!("| {} (.{}) | {} | {} | {} |", f.name, f.extensions.join(", ."), samples.join(", "), if f.pages { "many" } else { "one" }, f.keeps)
+            format!(
+                "| {} (.{}) | {} | {} | {} |",
+                f.name,
+                f.extensions.join(", ."),
+                samples.join(", "),
+                if f.pages { "many" } else { "one" },
+                f.keeps
+            )
         })
         .collect::<Vec<_>>()
         .join("\n")

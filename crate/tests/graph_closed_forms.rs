@@ -63,7 +63,11 @@ fn random_grid(w: usize, h: usize, seed: u64) -> Plane {
     Plane::from_fn(w, h, |x, y| {
         s = s.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
         let noise = (s >> 40) as f32 / (1u64 << 24) as f32 * 40.0;
-        if x < w / 2 { 50.0 + noise } else { 180.0 + noise + y as f32 }
+        if x < w / 2 {
+            50.0 + noise
+        } else {
+            180.0 + noise + y as f32
+        }
     })
 }
 

@@ -2,6 +2,10 @@
 //! with synthetic noise from a fixed seed, so the files regenerate byte for byte.
 //! Usage: make-samples [OUTDIR]   (default: sample-images)
 
+// Random angles are drawn from [0, 3.14) and [0, 6.28): the samples are defined by these exact
+// bounds (they regenerate byte for byte), not by pi.
+#![allow(clippy::approx_constant)]
+
 use patchgraph::file::{document_of, encode, Format};
 use patchgraph::planes::{BitDepth, Image, Plane};
 use patchgraph::synth::Rng;
@@ -68,16 +72,28 @@ fn chart() -> Vec<Plane> {
         } else if y < 144 {
             // Line pairs: pitch 8, 6, 4, 3, 2 pixels in five columns.
             let pitch = [8usize, 6, 4, 3, 2][(x * 5 / w).min(4)];
-            if (x / (pitch / 2).max(1)) % 2 == 0 { 200.0 } else { 60.0 }
+            if (x / (pitch / 2).max(1)).is_multiple_of(2) {
+                200.0
+            } else {
+                60.0
+            }
         } else {
             // Radial star of 24 wedges centred in the lower half, and a disc edge around it.
             let (dx, dy) = (xf - 128.0, yf - 200.0);
             let r = (dx * dx + dy * dy).sqrt();
             if r > 54.0 {
-                if xf < 128.0 { 90.0 } else { 170.0 }
+                if xf < 128.0 {
+                    90.0
+                } else {
+                    170.0
+                }
             } else {
                 let a = dy.atan2(dx);
-                if ((a / std::f32::consts::PI * 12.0).floor() as i32).rem_euclid(2) == 0 { 230.0 } else { 30.0 }
+                if ((a / std::f32::consts::PI * 12.0).floor() as i32).rem_euclid(2) == 0 {
+                    230.0
+                } else {
+                    30.0
+                }
             }
         }
     });
@@ -87,11 +103,8 @@ fn chart() -> Vec<Plane> {
 /// Colour inspection scene: a circuit board with pads, traces and coloured parts.
 fn board(rng: &mut Rng) -> Vec<Plane> {
     let (w, h) = (320usize, 240usize);
-    let mut rgb = vec![
-        Plane::from_fn(w, h, |_, _| 30.0),
-        Plane::from_fn(w, h, |_, _| 90.0),
-        Plane::from_fn(w, h, |_, _| 50.0),
-    ];
+    let mut rgb =
+        vec![Plane::from_fn(w, h, |_, _| 30.0), Plane::from_fn(w, h, |_, _| 90.0), Plane::from_fn(w, h, |_, _| 50.0)];
     let rect = |rgb: &mut Vec<Plane>, x0: usize, y0: usize, x1: usize, y1: usize, c: [f32; 3]| {
         for y in y0.min(h)..y1.min(h) {
             for x in x0.min(w)..x1.min(w) {
@@ -124,7 +137,10 @@ fn board(rng: &mut Rng) -> Vec<Plane> {
 fn noisy(planes: &[Plane], sigma: f64, rng: &mut Rng) -> Vec<Plane> {
     planes
         .iter()
-        .map(|p| Plane { data: p.data.iter().map(|v| (f64::from(*v) + sigma * rng.normal()) as f32).collect(), ..p.clone() })
+        .map(|p| Plane {
+            data: p.data.iter().map(|v| (f64::from(*v) + sigma * rng.normal()) as f32).collect(),
+            ..p.clone()
+        })
         .collect()
 }
 

@@ -18,7 +18,8 @@ fn fits_err(e: fitsio_pure::Error) -> Error {
 
 /// Cards the writer makes itself from the data's shape.
 fn structural(keyword: &str) -> bool {
-    matches!(keyword, "SIMPLE" | "BITPIX" | "NAXIS" | "END") || (keyword.starts_with("NAXIS") && keyword[5..].parse::<u32>().is_ok())
+    matches!(keyword, "SIMPLE" | "BITPIX" | "NAXIS" | "END")
+        || (keyword.starts_with("NAXIS") && keyword[5..].parse::<u32>().is_ok())
 }
 
 const U16_ZERO: f64 = 32768.0;
@@ -117,7 +118,8 @@ pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>
         SampleType::F32 => -32,
         SampleType::F64 => -64,
     };
-    let mut cards = fitsio_pure::primary::build_primary_header(bitpix, &axes).map_err(|e| Error::Encode(format!("FITS: {e}")))?;
+    let mut cards =
+        fitsio_pure::primary::build_primary_header(bitpix, &axes).map_err(|e| Error::Encode(format!("FITS: {e}")))?;
     let from_fits = doc.format == Format::Fits;
     if from_fits {
         cards.extend(m.fits_cards.iter().cloned());

@@ -35,7 +35,11 @@ impl DecodeLimits {
         }
         let px = width as u64 * height as u64;
         if px > self.max_megapixels * 1_000_000 {
-            return Err(Error::TooManyPixels { width: width as u32, height: height as u32, limit: self.max_megapixels });
+            return Err(Error::TooManyPixels {
+                width: width as u32,
+                height: height as u32,
+                limit: self.max_megapixels,
+            });
         }
         // Working copy: 4 bytes per sample.
         if px * pages as u64 * samples as u64 * 4 > self.max_alloc_mib * 1024 * 1024 {
@@ -296,7 +300,8 @@ impl Document {
         let same = img.width == page.image.width && img.height == page.image.height;
         match self.layout {
             Layout::Bands(_) if same && img.channels.len() == 1 => {
-                page.image.channels[c] = img.channels.into_iter().next().ok_or_else(|| Error::Internal("no plane".into()))?;
+                page.image.channels[c] =
+                    img.channels.into_iter().next().ok_or_else(|| Error::Internal("no plane".into()))?;
             }
             _ if same && img.channels.len() == page.image.channels.len() => page.image.channels = img.channels,
             _ => return Err(Error::Internal("a result differs in size from its page".into())),
@@ -308,7 +313,8 @@ impl Document {
     pub fn replace_unit(&mut self, k: usize, result: &Document) -> Result<()> {
         let per = self.per_page();
         let src = result.pages.first().ok_or(Error::ZeroSize)?;
-        let page = self.pages.get_mut(k / per).ok_or_else(|| Error::BadSettings(format!("there is no image {}", k + 1)))?;
+        let page =
+            self.pages.get_mut(k / per).ok_or_else(|| Error::BadSettings(format!("there is no image {}", k + 1)))?;
         let (w, h) = (page.image.width, page.image.height);
         let fits = src.image.width == w && src.image.height == h && result.sample == self.sample;
         match self.layout {
@@ -392,8 +398,11 @@ impl Document {
     /// Says, before any work, why `format` cannot hold this document as it is, naming one that can.
     pub fn check_writable(&self, format: Format) -> Result<()> {
         let Some(what) = self.refusal(format) else { return Ok(()) };
-        let better: Vec<String> =
-            FORMATS.iter().filter(|f| self.refusal(f.format).is_none()).map(|f| format!(".{}", f.extensions[0])).collect();
+        let better: Vec<String> = FORMATS
+            .iter()
+            .filter(|f| self.refusal(f.format).is_none())
+            .map(|f| format!(".{}", f.extensions[0]))
+            .collect();
         let hint = if better.is_empty() { String::new() } else { format!("; write {} instead", better.join(" or ")) };
         Err(Error::UnsupportedOutput(format!("{} cannot hold {what}{hint}", format.info().name)))
     }
@@ -481,5 +490,11 @@ pub fn document_of(img: Image, format: Format) -> Document {
     };
     let blanks = vec![Vec::new(); img.channels.len()];
     let maps = vec![ValueMap::IDENTITY; img.channels.len()];
-    Document { format, sample, layout, pages: vec![WorkingPage { image: img, blanks, maps }], meta: Metadata::default() }
+    Document {
+        format,
+        sample,
+        layout,
+        pages: vec![WorkingPage { image: img, blanks, maps }],
+        meta: Metadata::default(),
+    }
 }

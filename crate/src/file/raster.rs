@@ -18,7 +18,8 @@ fn map_decode_error(e: image::ImageError) -> Error {
 }
 
 pub fn decode(bytes: &[u8], format: Format, limits: &DecodeLimits) -> Result<Document> {
-    let reader = ImageReader::new(Cursor::new(bytes)).with_guessed_format().map_err(|e| Error::Decode(e.to_string()))?;
+    let reader =
+        ImageReader::new(Cursor::new(bytes)).with_guessed_format().map_err(|e| Error::Decode(e.to_string()))?;
     if reader.format().is_none() {
         return Err(Error::UnknownFormat);
     }
@@ -89,13 +90,17 @@ fn from_dynamic(img: DynamicImage) -> Result<Image> {
             (BitDepth::Eight, planes_from(w, h, b.as_raw(), 4, 3, f8), Some(Alpha::Eight(alpha_from(b.as_raw(), 4))))
         }
         DynamicImage::ImageLuma16(b) => (BitDepth::Sixteen, planes_from(w, h, b.as_raw(), 1, 1, f16), None),
-        DynamicImage::ImageLumaA16(b) => {
-            (BitDepth::Sixteen, planes_from(w, h, b.as_raw(), 2, 1, f16), Some(Alpha::Sixteen(alpha_from(b.as_raw(), 2))))
-        }
+        DynamicImage::ImageLumaA16(b) => (
+            BitDepth::Sixteen,
+            planes_from(w, h, b.as_raw(), 2, 1, f16),
+            Some(Alpha::Sixteen(alpha_from(b.as_raw(), 2))),
+        ),
         DynamicImage::ImageRgb16(b) => (BitDepth::Sixteen, planes_from(w, h, b.as_raw(), 3, 3, f16), None),
-        DynamicImage::ImageRgba16(b) => {
-            (BitDepth::Sixteen, planes_from(w, h, b.as_raw(), 4, 3, f16), Some(Alpha::Sixteen(alpha_from(b.as_raw(), 4))))
-        }
+        DynamicImage::ImageRgba16(b) => (
+            BitDepth::Sixteen,
+            planes_from(w, h, b.as_raw(), 4, 3, f16),
+            Some(Alpha::Sixteen(alpha_from(b.as_raw(), 4))),
+        ),
         _ => return Err(Error::UnsupportedPixelType("this pixel layout".into())),
     };
     Ok(Image { width: w, height: h, depth, channels, alpha })
@@ -136,8 +141,14 @@ fn encode_png(doc: &Document, page: &WorkingPage, provenance: Option<&Provenance
         let mut enc = png::Encoder::with_info(&mut out, info).map_err(enc_err)?;
         if let Some(r) = doc.meta.resolution {
             enc.set_pixel_dims(Some(match r.per_metre() {
-                Some((x, y)) => png::PixelDimensions { xppu: x.round() as u32, yppu: y.round() as u32, unit: png::Unit::Meter },
-                None => png::PixelDimensions { xppu: r.x.round() as u32, yppu: r.y.round() as u32, unit: png::Unit::Unspecified },
+                Some((x, y)) => {
+                    png::PixelDimensions { xppu: x.round() as u32, yppu: y.round() as u32, unit: png::Unit::Meter }
+                }
+                None => png::PixelDimensions {
+                    xppu: r.x.round() as u32,
+                    yppu: r.y.round() as u32,
+                    unit: png::Unit::Unspecified,
+                },
             }));
         }
         for (k, t) in &doc.meta.text {

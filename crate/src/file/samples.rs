@@ -47,7 +47,11 @@ impl SampleType {
     }
     /// The working depth: 8-bit data stays in 0-255, everything else works in 0-65535.
     pub fn working_depth(self) -> BitDepth {
-        if self == SampleType::U8 { BitDepth::Eight } else { BitDepth::Sixteen }
+        if self == SampleType::U8 {
+            BitDepth::Eight
+        } else {
+            BitDepth::Sixteen
+        }
     }
 }
 
@@ -69,7 +73,13 @@ impl ValueMap {
             // Shifting by 2^15 maps the type's range onto 0-65535 exactly.
             SampleType::I16 => ValueMap { offset: -32768.0, scale: 1.0 },
             _ => {
-                let offset = if lo >= 0.0 { 0.0 } else if sample.is_float() { lo } else { lo.floor() };
+                let offset = if lo >= 0.0 {
+                    0.0
+                } else if sample.is_float() {
+                    lo
+                } else {
+                    lo.floor()
+                };
                 let span = (hi - offset).max(0.0);
                 let mut scale = if span > 0.0 { (span / 65535.0).log2().ceil().exp2() } else { 1.0 };
                 // Integers whose span fits in 16 bits keep unit steps.
@@ -133,6 +143,7 @@ impl Samples {
         self.len() == 0
     }
     #[inline]
+    #[allow(clippy::unnecessary_cast)] // the macro casts every sample type, f64 among them
     pub fn get(&self, i: usize) -> f64 {
         each!(self, v => v[i] as f64)
     }
@@ -144,7 +155,9 @@ impl Samples {
             SampleType::U16 => Samples::U16((0..n).map(|i| q(i, 0.0, 65535.0) as u16).collect()),
             SampleType::I16 => Samples::I16((0..n).map(|i| q(i, -32768.0, 32767.0) as i16).collect()),
             SampleType::U32 => Samples::U32((0..n).map(|i| q(i, 0.0, f64::from(u32::MAX)) as u32).collect()),
-            SampleType::I32 => Samples::I32((0..n).map(|i| q(i, f64::from(i32::MIN), f64::from(i32::MAX)) as i32).collect()),
+            SampleType::I32 => {
+                Samples::I32((0..n).map(|i| q(i, f64::from(i32::MIN), f64::from(i32::MAX)) as i32).collect())
+            }
             SampleType::F32 => Samples::F32((0..n).map(|i| f(i) as f32).collect()),
             SampleType::F64 => Samples::F64((0..n).map(f).collect()),
         }
@@ -257,16 +270,17 @@ pub fn to_working(s: &Samples, w: usize, h: usize, layout: Layout, blank: BlankR
             Samples::U8(v) => Some(Alpha::Eight(v.iter().skip(n - 1).step_by(n).copied().collect())),
             Samples::U16(v) => Some(Alpha::Sixteen(v.iter().skip(n - 1).step_by(n).copied().collect())),
             _ => {
-                return Err(Error::UnsupportedPixelType(format!(
-                    "{} samples with an alpha channel",
-                    sample.describe()
-                )))
+                return Err(Error::UnsupportedPixelType(format!("{} samples with an alpha channel", sample.describe())))
             }
         }
     } else {
         None
     };
-    Ok(WorkingPage { image: Image { width: w, height: h, depth: sample.working_depth(), channels, alpha }, blanks, maps })
+    Ok(WorkingPage {
+        image: Image { width: w, height: h, depth: sample.working_depth(), channels, alpha },
+        blanks,
+        maps,
+    })
 }
 
 /// Per colour channel, the map of its unit: one over all colour channels, or one per band.

@@ -14,7 +14,9 @@ use tiff::tags::{PhotometricInterpretation, SampleFormat, Tag};
 
 fn tiff_err(page: usize, e: tiff::TiffError) -> Error {
     let what = match e {
-        tiff::TiffError::LimitsExceeded => return Error::TooMuchMemory { limit_mib: DecodeLimits::default().max_alloc_mib },
+        tiff::TiffError::LimitsExceeded => {
+            return Error::TooMuchMemory { limit_mib: DecodeLimits::default().max_alloc_mib }
+        }
         tiff::TiffError::IoError(ref io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
             "the file ends before the page's data (truncated?)".to_string()
         }
@@ -43,7 +45,9 @@ fn page_head(dec: &mut Decoder<Cursor<&[u8]>>, page: usize) -> Result<Option<Pag
     let photometric = tag_u16(dec, Tag::PhotometricInterpretation)?.and_then(|v| v.first().copied());
     let extra = tag_u16(dec, Tag::ExtraSamples)?.unwrap_or_default();
     if bits.iter().any(|b| *b != bits[0]) || formats.iter().any(|f| *f != formats[0]) {
-        return Err(Error::UnsupportedPixelType(format!("TIFF page {page}: channels of different sample sizes or types")));
+        return Err(Error::UnsupportedPixelType(format!(
+            "TIFF page {page}: channels of different sample sizes or types"
+        )));
     }
     let sample = match (bits[0], SampleFormat::from_u16(formats[0])) {
         (8, Some(SampleFormat::Uint)) => SampleType::U8,
@@ -103,13 +107,22 @@ fn check_chunks(dec: &mut Decoder<Cursor<&[u8]>>, file_len: usize, head: &PageHe
             SampleType::U32 | SampleType::I32 | SampleType::F32 => 4,
             SampleType::F64 => 8,
         };
-        let planes = if offsets.len() > 1 && dec.find_tag(Tag::PlanarConfiguration).ok().flatten().and_then(|v| v.into_u16().ok()) == Some(2) {
+        let planes = if offsets.len() > 1
+            && dec.find_tag(Tag::PlanarConfiguration).ok().flatten().and_then(|v| v.into_u16().ok()) == Some(2)
+        {
             head.layout.samples_per_pixel()
         } else {
             1
         };
         let row = (head.width * bytes_per_sample * head.layout.samples_per_pixel() / planes) as u64;
-        let rows_per_strip = dec.find_tag(Tag::RowsPerStrip).ok().flatten().and_then(|v| v.into_u64().ok()).unwrap_or(head.height as u64).min(head.height as u64).max(1);
+        let rows_per_strip = dec
+            .find_tag(Tag::RowsPerStrip)
+            .ok()
+            .flatten()
+            .and_then(|v| v.into_u64().ok())
+            .unwrap_or(head.height as u64)
+            .min(head.height as u64)
+            .max(1);
         let per_plane = offsets.len() / planes;
         for (i, c) in counts.iter().enumerate() {
             let k = (i % per_plane.max(1)) as u64;
@@ -142,7 +155,10 @@ fn interleave(s: Samples, n: usize) -> Samples {
 }
 
 fn read_metadata(dec: &mut Decoder<Cursor<&[u8]>>, bytes: &[u8]) -> Metadata {
-    let mut m = Metadata { big_tiff: bytes.get(2..4) == Some(&[43, 0]) || bytes.get(2..4) == Some(&[0, 43]), ..Metadata::default() };
+    let mut m = Metadata {
+        big_tiff: bytes.get(2..4) == Some(&[43, 0]) || bytes.get(2..4) == Some(&[0, 43]),
+        ..Metadata::default()
+    };
     let num = |dec: &mut Decoder<Cursor<&[u8]>>, t| match dec.find_tag(t).ok().flatten()? {
         tiff::decoder::ifd::Value::Rational(n, d) if d != 0 => Some(f64::from(n) / f64::from(d)),
         tiff::decoder::ifd::Value::Double(v) => Some(v),
@@ -181,7 +197,13 @@ fn open<'a>(bytes: &'a [u8], limits: &DecodeLimits) -> Result<(Decoder<Cursor<&'
 
 /// The current page, checked and converted to working values at once (pages are never held as
 /// stored samples all together). `pages` counts this one, for the memory cap.
-fn read_page(dec: &mut Decoder<Cursor<&[u8]>>, file_len: usize, head: &PageHead, page: usize, limits: &DecodeLimits) -> Result<WorkingPage> {
+fn read_page(
+    dec: &mut Decoder<Cursor<&[u8]>>,
+    file_len: usize,
+    head: &PageHead,
+    page: usize,
+    limits: &DecodeLimits,
+) -> Result<WorkingPage> {
     limits.check(head.width, head.height, page, head.layout.samples_per_pixel())?;
     check_chunks(dec, file_len, head, page)?;
     let mut result = DecodingResult::U8(Vec::new());
@@ -198,7 +220,9 @@ fn read_page(dec: &mut Decoder<Cursor<&[u8]>>, file_len: usize, head: &PageHead,
 }
 
 fn unsupported_model(page: usize) -> Error {
-    Error::UnsupportedPixelType(format!("TIFF page {page}'s colour model (palette, YCbCr, CMYK or under 8 bits) in a multi-page file"))
+    Error::UnsupportedPixelType(format!(
+        "TIFF page {page}'s colour model (palette, YCbCr, CMYK or under 8 bits) in a multi-page file"
+    ))
 }
 
 pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
@@ -219,7 +243,12 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
             if (f.width, f.height, f.layout, f.sample) != (head.width, head.height, head.layout, head.sample) {
                 return Err(Error::Decode(format!(
                     "TIFF page {page} is {} x {} {} where page 1 is {} x {} {}: pages must match",
-                    head.width, head.height, head.sample.describe(), f.width, f.height, f.sample.describe()
+                    head.width,
+                    head.height,
+                    head.sample.describe(),
+                    f.width,
+                    f.height,
+                    f.sample.describe()
                 )));
             }
         }
@@ -335,7 +364,7 @@ where
     let n = doc.layout.samples_per_pixel();
     let extra: Vec<u16> = match doc.layout {
         Layout::GreyAlpha | Layout::Rgba => vec![2], // unassociated alpha
-        Layout::Bands(_) => vec![0; n - 1], // unspecified: independent channels
+        Layout::Bands(_) => vec![0; n - 1],          // unspecified: independent channels
         _ => Vec::new(),
     };
     let d = im.encoder();
@@ -382,11 +411,17 @@ where
         6 => go!(6),
         7 => go!(7),
         8 => go!(8),
-        n => Err(Error::UnsupportedOutput(format!("TIFF output holds at most 8 channels per pixel here; the image has {n}"))),
+        n => Err(Error::UnsupportedOutput(format!(
+            "TIFF output holds at most 8 channels per pixel here; the image has {n}"
+        ))),
     }
 }
 
-fn write_all<W: Write + Seek, K: TiffKind>(mut enc: TiffEncoder<W, K>, doc: &Document, provenance: Option<&Provenance>) -> Result<()> {
+fn write_all<W: Write + Seek, K: TiffKind>(
+    mut enc: TiffEncoder<W, K>,
+    doc: &Document,
+    provenance: Option<&Provenance>,
+) -> Result<()> {
     for page in &doc.pages {
         let blank = if doc.sample.is_float() { f64::NAN } else { 0.0 };
         let s = samples::from_working(page, doc.layout, doc.sample, blank);
@@ -413,7 +448,8 @@ pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>
         SampleType::U32 | SampleType::I32 | SampleType::F32 => 4,
         SampleType::F64 => 8,
     };
-    let size = (doc.width() * doc.height() * doc.layout.samples_per_pixel() * doc.pages.len()) as u64 * bytes_per_sample;
+    let size =
+        (doc.width() * doc.height() * doc.layout.samples_per_pixel() * doc.pages.len()) as u64 * bytes_per_sample;
     let compression = match doc.meta.compression {
         Compression::None => tiff::encoder::Compression::Uncompressed,
         Compression::Lzw => tiff::encoder::Compression::Lzw,

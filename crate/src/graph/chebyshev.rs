@@ -11,9 +11,8 @@ use crate::progress::{check, Progress};
 pub fn coefficients(h: impl Fn(f64) -> f64, lambda_max: f64, order: usize) -> Vec<f64> {
     let m = (order + 1).max(64);
     let a = lambda_max / 2.0;
-    let samples: Vec<f64> = (1..=m)
-        .map(|j| h(a * ((std::f64::consts::PI * (j as f64 - 0.5) / m as f64).cos() + 1.0)))
-        .collect();
+    let samples: Vec<f64> =
+        (1..=m).map(|j| h(a * ((std::f64::consts::PI * (j as f64 - 0.5) / m as f64).cos() + 1.0))).collect();
     (0..=order)
         .map(|k| {
             let s: f64 = samples

@@ -62,8 +62,18 @@ pub struct Assembler<'a> {
 impl<'a> Assembler<'a> {
     /// `fallback`: the stage's input planes (full image).
     pub fn new(bands: &'a [Band], fallback: &'a [Plane]) -> Self {
-        let out = fallback.iter().map(|p| Plane { width: p.width, height: p.height, data: vec![0.0; p.data.len()] }).collect();
-        Assembler { bands, parts: vec![None; bands.len()], received: vec![false; bands.len()], fallback, out, next_row: 0 }
+        let out = fallback
+            .iter()
+            .map(|p| Plane { width: p.width, height: p.height, data: vec![0.0; p.data.len()] })
+            .collect();
+        Assembler {
+            bands,
+            parts: vec![None; bands.len()],
+            received: vec![false; bands.len()],
+            fallback,
+            out,
+            next_row: 0,
+        }
     }
 
     pub fn add(&mut self, index: usize, acc: Accumulator) -> Result<()> {

@@ -41,7 +41,15 @@ pub struct Profile {
 /// Patch size 0 means "by noise level": 8, or 12 above sigma 40 on the 8-bit scale, where larger
 /// patches match more reliably (the same switch as Dabov et al.'s high-noise profile).
 pub fn profile(s: &PatchGraphSettings, sigma8: f64) -> Profile {
-    let patch = if s.patch_size == 0 { if sigma8 > 40.0 { 12 } else { 8 } } else { s.patch_size as usize };
+    let patch = if s.patch_size == 0 {
+        if sigma8 > 40.0 {
+            12
+        } else {
+            8
+        }
+    } else {
+        s.patch_size as usize
+    };
     Profile {
         patch,
         step: s.step as usize,
@@ -85,7 +93,15 @@ fn low_freq_indices(k: usize) -> Vec<usize> {
 /// which noise disturbs least). `noise` is the noise variance summed over those coefficients
 /// (DC included), `noisy` whether the coefficients carry it (stage 1) or come from the cleaner
 /// basic estimate (stage 2).
-fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise: f64, noisy: bool, kind: GroupGraph) -> Vec<f64> {
+fn group_weights(
+    flat: &[f32],
+    k: usize,
+    lf: &[usize],
+    range: f64,
+    noise: f64,
+    noisy: bool,
+    kind: GroupGraph,
+) -> Vec<f64> {
     let coeffs: Vec<&[f32]> = flat.chunks(k * k).collect();
     let n = coeffs.len();
     let mut w = vec![0.0; n * n];
@@ -119,7 +135,8 @@ fn group_weights(flat: &[f32], k: usize, lf: &[usize], range: f64, noise: f64, n
                 .collect();
             for i in 0..n {
                 for j in i + 1..n {
-                    let cov = lf[1..].iter().map(|&f| f64::from(coeffs[i][f]) * f64::from(coeffs[j][f])).sum::<f64>() / kk;
+                    let cov =
+                        lf[1..].iter().map(|&f| f64::from(coeffs[i][f]) * f64::from(coeffs[j][f])).sum::<f64>() / kk;
                     set(i, j, patch_ssim(mean[i], mean[j], var[i], var[j], cov, c1, c2).max(0.0));
                 }
             }
@@ -225,12 +242,17 @@ impl<'a> Stage<'a> {
             )));
         }
         let rows_ok = y0 + first.height <= full_height
-            && noisy.iter().chain(basic.into_iter().flatten()).all(|p| p.width == first.width && p.height == first.height);
+            && noisy
+                .iter()
+                .chain(basic.into_iter().flatten())
+                .all(|p| p.width == first.width && p.height == first.height);
         if !rows_ok || basic.is_some_and(|b| b.len() != noisy.len()) {
             return Err(Error::Internal("the planes of a stage do not line up".into()));
         }
         let k = prof.patch;
-        if spectra.is_some_and(|sp| sp.len() != noisy.len() || sp.iter().any(|x| x.k != k || x.variances.len() != k * k)) {
+        if spectra
+            .is_some_and(|sp| sp.len() != noisy.len() || sp.iter().any(|x| x.k != k || x.variances.len() != k * k))
+        {
             return Err(Error::Internal("the noise spectra do not fit the planes and patch size".into()));
         }
         let noise: Vec<CoeffNoise> =
@@ -262,7 +284,11 @@ impl<'a> Stage<'a> {
     }
 
     fn group_size(&self) -> usize {
-        if self.basic.is_some() { self.prof.group2 } else { self.prof.group1 }
+        if self.basic.is_some() {
+            self.prof.group2
+        } else {
+            self.prof.group1
+        }
     }
 
     /// Processes the references of one tile (image coordinates); returns its accumulator, in image
@@ -287,7 +313,8 @@ impl<'a> Stage<'a> {
         let mp = MatchParams {
             patch: k,
             search: s,
-            max_group: self.group_size() * if self.prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 },
+            max_group: self.group_size()
+                * if self.prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 },
             min_similarity: self.prof.min_similarity,
             range: self.range,
             noise_var: if basic.is_some() { 0.0 } else { self.match_var },
@@ -331,7 +358,9 @@ impl<'a> Stage<'a> {
         let (_, expected) = tested_expectation(self.lf_var, self.lf.len(), noisy);
         let reference = self.patch_coeffs_of(plane, &group.positions[..1]);
         (base..n)
-            .find(|&i| lf_distance(&reference, &self.patch_coeffs_of(plane, &group.positions[i..=i]), &self.lf) > expected)
+            .find(|&i| {
+                lf_distance(&reference, &self.patch_coeffs_of(plane, &group.positions[i..=i]), &self.lf) > expected
+            })
             .unwrap_or(n)
     }
 
@@ -353,7 +382,15 @@ impl<'a> Stage<'a> {
         };
         // u[i n + j]: entry i of the j-th graph Fourier vector.
         let u: Vec<f32> = if n > 1 {
-            let weights = group_weights(graph_src, k, &self.lf, self.range, self.lf_var, basic_c.is_none(), self.prof.group_graph);
+            let weights = group_weights(
+                graph_src,
+                k,
+                &self.lf,
+                self.range,
+                self.lf_var,
+                basic_c.is_none(),
+                self.prof.group_graph,
+            );
             let m = graph_fourier_basis(&weights, n);
             (0..n * n).map(|idx| m[(idx / n, idx % n)] as f32).collect()
         } else {

@@ -57,7 +57,8 @@ pub fn denoise(
         progress.report(pass as f32 / passes as f32, "building the graph");
         let graph = GridGraph::build(&guide, &params);
         for (c, noisy) in planes.iter().enumerate() {
-            let sub = SubProgress { parent: progress, start: (pass * planes.len() + c) as f32 / steps, span: 1.0 / steps };
+            let sub =
+                SubProgress { parent: progress, start: (pass * planes.len() + c) as f32 / steps, span: 1.0 / steps };
             let y: Vec<f64> = noisy.data.iter().map(|v| f64::from(*v)).collect();
             let x = match s.filter {
                 GraphFilter::Tikhonov => {
@@ -76,7 +77,8 @@ pub fn denoise(
                     chebyshev::apply(&graph, &coeffs, lmax, &y, &sub)?
                 }
             };
-            out[c] = Plane { width: first.width, height: first.height, data: x.into_iter().map(|v| v as f32).collect() };
+            out[c] =
+                Plane { width: first.width, height: first.height, data: x.into_iter().map(|v| v as f32).collect() };
         }
         guide = out[0].clone();
         // The estimate is far cleaner than the input: compare it as (nearly) noise-free.

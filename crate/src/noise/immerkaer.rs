@@ -156,7 +156,8 @@ fn one_sided_sigma(p: &Plane, bx: usize, by: usize, low: bool) -> f64 {
         .collect();
     v.sort_by(f64::total_cmp);
     let med = 0.5 * (v[v.len() / 2 - 1] + v[v.len() / 2]);
-    let side: Vec<f64> = v.iter().filter(|x| if low { **x > med } else { **x < med }).map(|x| (x - med).powi(2)).collect();
+    let side: Vec<f64> =
+        v.iter().filter(|x| if low { **x > med } else { **x < med }).map(|x| (x - med).powi(2)).collect();
     // Samples equal to the median (rounded data) count on the far side with zero distance.
     let n = v.len() / 2;
     (side.iter().sum::<f64>() / n.max(1) as f64).sqrt()

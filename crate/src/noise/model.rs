@@ -96,7 +96,11 @@ pub fn photon_fit(f: &NoiseLevelFunction, settings: &Settings) -> PhotonFit {
         (None, None) => {
             let o = f.black_level.max(0.0);
             let v = intercept + gain * o;
-            if v >= 0.0 { (o, v.sqrt()) } else { (-intercept / gain, 0.0) }
+            if v >= 0.0 {
+                (o, v.sqrt())
+            } else {
+                (-intercept / gain, 0.0)
+            }
         }
     };
     PhotonFit {
@@ -121,12 +125,22 @@ pub fn model_name(dependence: Dependence, correlated: bool) -> String {
         Dependence::Photon => "Poisson-Gaussian",
         Dependence::Curve => "brightness-dependent Gaussian",
     };
-    if correlated { format!("correlated {}", base.trim_start_matches("white ")) } else { base.to_string() }
+    if correlated {
+        format!("correlated {}", base.trim_start_matches("white "))
+    } else {
+        base.to_string()
+    }
 }
 
 /// The plain sentence for a fitted model; `unfit` when too few smooth areas were found to see a
 /// dependence on brightness.
-pub fn explain(dependence: Dependence, correlated: bool, unfit: bool, channels: &[ChannelNoise], planes: &[PlaneNoise]) -> String {
+pub fn explain(
+    dependence: Dependence,
+    correlated: bool,
+    unfit: bool,
+    channels: &[ChannelNoise],
+    planes: &[PlaneNoise],
+) -> String {
     let mut s = String::new();
     match dependence {
         Dependence::None if unfit => {
@@ -169,6 +183,10 @@ impl NoiseLevelFunction {
             s += w * (p.variance - slope * p.mean);
             n += w;
         }
-        if n > 0.0 { s / n } else { self.intercept }
+        if n > 0.0 {
+            s / n
+        } else {
+            self.intercept
+        }
     }
 }

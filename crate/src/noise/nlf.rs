@@ -68,7 +68,9 @@ impl NoiseLevelFunction {
 
     /// The variance grows with intensity by more than [`DEPENDENCE_RATIO`] over the data.
     pub fn signal_dependent(&self) -> bool {
-        self.reliable && self.slope > 0.0 && self.variance(self.high) > DEPENDENCE_RATIO * self.variance(self.low).max(1e-12)
+        self.reliable
+            && self.slope > 0.0
+            && self.variance(self.high) > DEPENDENCE_RATIO * self.variance(self.low).max(1e-12)
     }
 
     /// The quadratic curve's variance at y, held at its ends outside [low, high] and above a tenth
@@ -82,7 +84,8 @@ impl NoiseLevelFunction {
 
     /// Largest over smallest variance of the curve over [low, high].
     pub fn curve_ratio(&self) -> f64 {
-        let v: Vec<f64> = (0..=16).map(|i| self.curve_variance(self.low + (self.high - self.low) * f64::from(i) / 16.0)).collect();
+        let v: Vec<f64> =
+            (0..=16).map(|i| self.curve_variance(self.low + (self.high - self.low) * f64::from(i) / 16.0)).collect();
         v.iter().copied().fold(0.0, f64::max) / v.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12)
     }
 
@@ -98,7 +101,11 @@ impl NoiseLevelFunction {
             s += p.variance * p.blocks as f64;
             n += p.blocks as f64;
         }
-        if n > 0.0 { s / n } else { 0.0 }
+        if n > 0.0 {
+            s / n
+        } else {
+            0.0
+        }
     }
 }
 

@@ -169,7 +169,8 @@ pub fn estimate(p: &Plane, k: usize) -> Option<NoiseSpectrum> {
     if n < 32 {
         return None;
     }
-    let mut variances: Vec<f64> = squares.iter().map(|s| s.iter().map(|v| f64::from(*v)).sum::<f64>() / n as f64).collect();
+    let mut variances: Vec<f64> =
+        squares.iter().map(|s| s.iter().map(|v| f64::from(*v)).sum::<f64>() / n as f64).collect();
     let medians: Vec<f64> = squares
         .iter_mut()
         .map(|s| {
@@ -250,7 +251,9 @@ mod tests {
                     continue; // the DC entry is extrapolated, not measured
                 }
                 let mut v = 0.0;
-                for (ay, ax, by, bx) in (0..k).flat_map(|ay| (0..k).flat_map(move |ax| (0..k).flat_map(move |by| (0..k).map(move |bx| (ay, ax, by, bx))))) {
+                for (ay, ax, by, bx) in (0..k).flat_map(|ay| {
+                    (0..k).flat_map(move |ax| (0..k).flat_map(move |by| (0..k).map(move |bx| (ay, ax, by, bx))))
+                }) {
                     let ca = f64::from(c[fy * k + ay] * c[fx * k + ax]);
                     let cb = f64::from(c[fy * k + by] * c[fx * k + bx]);
                     v += ca * cb * r(bx as isize - ax as isize, by as isize - ay as isize);

@@ -18,17 +18,13 @@ pub const MAD_TO_SIGMA: f64 = 0.674_489_750_196_081_7;
 fn highpass_down(get: impl Fn(isize) -> f64, n: usize) -> Vec<f64> {
     let l = DB2_DEC_HI.len();
     let m = (n + l - 1) / 2;
-    (0..m)
-        .map(|o| DB2_DEC_HI.iter().enumerate().map(|(k, f)| f * get(2 * o as isize + 1 - k as isize)).sum())
-        .collect()
+    (0..m).map(|o| DB2_DEC_HI.iter().enumerate().map(|(k, f)| f * get(2 * o as isize + 1 - k as isize)).sum()).collect()
 }
 
 /// The finest diagonal (high-high) detail band.
 pub fn hh_band(p: &Plane) -> (usize, usize, Vec<f64>) {
     let (w, h) = (p.width, p.height);
-    let rows: Vec<Vec<f64>> = (0..h)
-        .map(|y| highpass_down(|x| f64::from(p.data[y * w + mirror(x, w)]), w))
-        .collect();
+    let rows: Vec<Vec<f64>> = (0..h).map(|y| highpass_down(|x| f64::from(p.data[y * w + mirror(x, w)]), w)).collect();
     let bw = rows.first().map_or(0, |r| r.len());
     let cols: Vec<Vec<f64>> = (0..bw).map(|x| highpass_down(|y| rows[mirror(y, h)][x], h)).collect();
     let bh = cols.first().map_or(0, |c| c.len());

@@ -43,7 +43,14 @@ pub struct Accumulator {
 
 impl Accumulator {
     pub fn new(x0: usize, y0: usize, width: usize, height: usize, channels: usize) -> Self {
-        Accumulator { x0, y0, width, height, num: vec![vec![0.0; width * height]; channels], den: vec![0.0; width * height] }
+        Accumulator {
+            x0,
+            y0,
+            width,
+            height,
+            num: vec![vec![0.0; width * height]; channels],
+            den: vec![0.0; width * height],
+        }
     }
 
     /// Adds one k x k patch estimate per channel at (x, y) in this accumulator's coordinates.
@@ -83,7 +90,16 @@ mod tests {
     #[test]
     fn kaiser_window_matches_numpy() {
         // Reference: numpy.kaiser(8, 2.0) from numpy 2.4 (the diagonal of the 2-D window is its square).
-        let want = [0.438_676_28, 0.681_324_26, 0.876_839_91, 0.985_822_51, 0.985_822_51, 0.876_839_91, 0.681_324_26, 0.438_676_28];
+        let want = [
+            0.438_676_28,
+            0.681_324_26,
+            0.876_839_91,
+            0.985_822_51,
+            0.985_822_51,
+            0.876_839_91,
+            0.681_324_26,
+            0.438_676_28,
+        ];
         let w = kaiser_window(8, 2.0);
         for (i, v) in want.iter().enumerate() {
             assert!((f64::from(w[i * 8 + i]).sqrt() - v).abs() < 1e-6, "{i}");

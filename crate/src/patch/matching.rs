@@ -107,14 +107,20 @@ pub fn patch_ssim(ma: f64, mb: f64, va: f64, vb: f64, cov: f64, c1: f64, c2: f64
 }
 
 /// Groups for the given reference corners (all with x + patch <= width, y + patch <= height).
-pub fn match_groups(img: &Plane, refs: &[(usize, usize)], p: &MatchParams, progress: &dyn Progress) -> Result<Vec<Group>> {
+pub fn match_groups(
+    img: &Plane,
+    refs: &[(usize, usize)],
+    p: &MatchParams,
+    progress: &dyn Progress,
+) -> Result<Vec<Group>> {
     let (w, h, k) = (img.width, img.height, p.patch);
     let (pw, ph) = (w + 1 - k, h + 1 - k);
     let kk = (k * k) as f64;
     let values: Vec<f64> = img.data.iter().map(|v| f64::from(*v)).collect();
     let mut sums = BoxSums::new(w, h, k);
     sums.fill(&values);
-    let means: Vec<f64> = (0..ph).flat_map(|y| (0..pw).map(move |x| (x, y))).map(|(x, y)| sums.square(x, y) / kk).collect();
+    let means: Vec<f64> =
+        (0..ph).flat_map(|y| (0..pw).map(move |x| (x, y))).map(|(x, y)| sums.square(x, y) / kk).collect();
     let squares: Vec<f64> = values.iter().map(|v| v * v).collect();
     sums.fill(&squares);
     let pos_stats: Vec<(f64, f64)> = (0..ph)
@@ -129,7 +135,11 @@ pub fn match_groups(img: &Plane, refs: &[(usize, usize)], p: &MatchParams, progr
     let mut best: Vec<Best> = refs
         .iter()
         .map(|&r| {
-            let mut b = Best { sims: Vec::with_capacity(p.max_group + 1), pos: Vec::with_capacity(p.max_group + 1), cap: p.max_group };
+            let mut b = Best {
+                sims: Vec::with_capacity(p.max_group + 1),
+                pos: Vec::with_capacity(p.max_group + 1),
+                cap: p.max_group,
+            };
             b.offer(f32::INFINITY, r); // the reference is always in its group, first
             b
         })

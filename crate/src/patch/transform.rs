@@ -196,7 +196,8 @@ mod tests {
     fn group_basis_is_orthonormal_with_a_constant_first_vector() {
         // Invariants: U^T U = I; a connected graph's Laplacian has the constant vector for eigenvalue 0.
         let n = 6;
-        let w: Vec<f64> = (0..n * n).map(|i| if i / n == i % n { 0.0 } else { 0.2 + ((i / n + i % n) % 5) as f64 * 0.1 }).collect();
+        let w: Vec<f64> =
+            (0..n * n).map(|i| if i / n == i % n { 0.0 } else { 0.2 + ((i / n + i % n) % 5) as f64 * 0.1 }).collect();
         let u = graph_fourier_basis(&w, n);
         let gram = u.transpose() * &u;
         assert!((gram - DMatrix::identity(n, n)).abs().max() < 1e-10);

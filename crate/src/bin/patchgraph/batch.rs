@@ -12,7 +12,6 @@ use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::time::Instant;
 
-
 /// Parses "K/N" with 1 <= K <= N.
 pub fn parse_shard(text: &str) -> Result<(usize, usize), Failure> {
     let bad = || Failure::user(format!("--shard must be K/N with 1 <= K <= N, got \"{text}\""));
@@ -33,7 +32,8 @@ pub fn collect(inputs: &[PathBuf]) -> Result<Vec<PathBuf>, Failure> {
     let mut files = Vec::new();
     for p in inputs {
         if p.is_dir() {
-            let entries = std::fs::read_dir(p).map_err(|e| Failure::user(format!("{}: cannot list the folder ({e})", p.display())))?;
+            let entries = std::fs::read_dir(p)
+                .map_err(|e| Failure::user(format!("{}: cannot list the folder ({e})", p.display())))?;
             files.extend(entries.filter_map(|e| e.ok()).map(|e| e.path()).filter(|f| f.is_file() && is_image(f)));
         } else {
             files.push(p.clone());
@@ -61,7 +61,10 @@ struct Slice<'a> {
 
 impl Progress for Slice<'_> {
     fn report(&self, fraction: f32, stage: &str) {
-        self.bar.report((self.index as f32 + fraction) / self.total as f32, &format!("file {} of {}: {stage}", self.index + 1, self.total));
+        self.bar.report(
+            (self.index as f32 + fraction) / self.total as f32,
+            &format!("file {} of {}: {stage}", self.index + 1, self.total),
+        );
     }
     fn is_cancelled(&self) -> bool {
         self.bar.is_cancelled()
@@ -71,11 +74,16 @@ impl Progress for Slice<'_> {
 /// Refuses an output that is an input of this batch, or that an earlier file already wrote.
 fn check_target(out: &Path, input: &Path, written: &[PathBuf]) -> Result<(), Error> {
     if written.iter().any(|w| w == out) {
-        return Err(Error::UnsupportedOutput(format!("{} was already written from another input with the same name", out.display())));
+        return Err(Error::UnsupportedOutput(format!(
+            "{} was already written from another input with the same name",
+            out.display()
+        )));
     }
     if let (Ok(a), Ok(b)) = (std::fs::canonicalize(out), std::fs::canonicalize(input)) {
         if a == b {
-            return Err(Error::UnsupportedOutput("the output would overwrite the input; choose another output folder".into()));
+            return Err(Error::UnsupportedOutput(
+                "the output would overwrite the input; choose another output folder".into(),
+            ));
         }
     }
     Ok(())
@@ -124,10 +132,20 @@ fn files_at_once(settings: &patchgraph::Settings) -> usize {
 }
 
 fn csv_field(s: &str) -> String {
-    if s.contains([',', '"', '\n']) { format!("\"{}\"", s.replace('"', "\"\"")) } else { s.to_string() }
+    if s.contains([',', '"', '\n']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
 }
 
-pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: Option<&Path>, shard: Option<&str>, json: bool) -> Result<(), Failure> {
+pub fn batch(
+    inputs: &[PathBuf],
+    outdir: &Path,
+    settings_path: Option<&Path>,
+    shard: Option<&str>,
+    json: bool,
+) -> Result<(), Failure> {
     let settings = match settings_path {
         Some(p) => read_settings(p)?,
         None => patchgraph::Settings::default(),
@@ -141,7 +159,8 @@ pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: Option<&Path>, sh
         return Err(Failure::user(format!("no image files were given ({})", file::Format::all_extensions())));
     }
     let files: Vec<PathBuf> = all.into_iter().enumerate().filter(|(i, _)| i % n == k - 1).map(|(_, f)| f).collect();
-    std::fs::create_dir_all(outdir).map_err(|e| Failure::user(format!("{}: cannot create the folder ({e})", outdir.display())))?;
+    std::fs::create_dir_all(outdir)
+        .map_err(|e| Failure::user(format!("{}: cannot create the folder ({e})", outdir.display())))?;
     let bar = TerminalProgress::new(!json && std::io::stderr().is_terminal());
     let mut outcomes = Vec::new();
     let at_once = files_at_once(&settings);
@@ -168,9 +187,13 @@ pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: Option<&Path>, sh
                 store(input, outdir, done, &written).map(|out| (out, sigma))
             });
             outcomes.push(match r {
-                Ok((out, sigma)) => Outcome { input: input.clone(), output: Some(out), sigma: Some(sigma), seconds, error: None },
+                Ok((out, sigma)) => {
+                    Outcome { input: input.clone(), output: Some(out), sigma: Some(sigma), seconds, error: None }
+                }
                 Err(Error::Cancelled) => break 'chunks,
-                Err(e) => Outcome { input: input.clone(), output: None, sigma: None, seconds, error: Some(e.to_string()) },
+                Err(e) => {
+                    Outcome { input: input.clone(), output: None, sigma: None, seconds, error: Some(e.to_string()) }
+                }
             });
         }
     }
@@ -196,19 +219,36 @@ pub fn batch(inputs: &[PathBuf], outdir: &Path, settings_path: Option<&Path>, sh
             .iter()
             .map(|o| serde_json::json!({"input": o.input, "output": o.output, "sigma": o.sigma, "seconds": o.seconds, "error": o.error}))
             .collect();
-        outln!("{}", serde_json::json!({"files": rows, "done": outcomes.len() - failed, "failed": failed, "shard": format!("{k}/{n}"), "cancelled": cancelled}));
+        outln!(
+            "{}",
+            serde_json::json!({"files": rows, "done": outcomes.len() - failed, "failed": failed, "shard": format!("{k}/{n}"), "cancelled": cancelled})
+        );
     } else {
         for o in &outcomes {
             match (&o.output, &o.error) {
-                (Some(out), _) => outln!("ok      {} -> {} (sigma {:.2}, {:.2} s)", o.input.display(), out.display(), o.sigma.unwrap_or(0.0), o.seconds),
+                (Some(out), _) => outln!(
+                    "ok      {} -> {} (sigma {:.2}, {:.2} s)",
+                    o.input.display(),
+                    out.display(),
+                    o.sigma.unwrap_or(0.0),
+                    o.seconds
+                ),
                 (_, Some(e)) => outln!("failed  {}: {e}", o.input.display()),
                 _ => {}
             }
         }
-        outln!("{} done, {} failed, report in {}", outcomes.len() - failed, failed, outdir.join(&report_name).display());
+        outln!(
+            "{} done, {} failed, report in {}",
+            outcomes.len() - failed,
+            failed,
+            outdir.join(&report_name).display()
+        );
     }
     if cancelled {
-        return Err(Failure { code: 130, message: format!("cancelled after {} of {} files", outcomes.len(), files.len()) });
+        return Err(Failure {
+            code: 130,
+            message: format!("cancelled after {} of {} files", outcomes.len(), files.len()),
+        });
     }
     if failed > 0 {
         return Err(Failure::user(format!("{failed} of {} files failed; see the report", files.len())));

@@ -2,10 +2,10 @@
 
 use crate::terminal::{write_atomically, TerminalProgress};
 use crate::{MethodArg, NoiseArg};
+use patchgraph::error_estimate::ErrorEstimate;
 use patchgraph::file::{self, DecodeLimits, Document, Format, Provenance};
 use patchgraph::planes::{BitDepth, Image};
 use patchgraph::settings::{AutoOr, Method, NoiseModel, Settings};
-use patchgraph::error_estimate::ErrorEstimate;
 use patchgraph::{metrics, pipeline, run_file, Error};
 use serde_json::json;
 use std::io::IsTerminal;
@@ -44,7 +44,8 @@ impl Failure {
 pub type CmdResult = Result<(), Failure>;
 
 pub fn read_document(path: &Path, limits: &DecodeLimits) -> Result<Document, Failure> {
-    let bytes = std::fs::read(path).map_err(|e| Failure::user(format!("{}: cannot read the file ({e})", path.display())))?;
+    let bytes =
+        std::fs::read(path).map_err(|e| Failure::user(format!("{}: cannot read the file ({e})", path.display())))?;
     file::decode(&bytes, limits).map_err(|e| Failure::about(path, e))
 }
 
@@ -136,8 +137,8 @@ pub fn estimate_line(e: &ErrorEstimate) -> String {
 
 /// Reads and validates a settings file.
 pub fn read_settings(p: &Path) -> Result<Settings, Failure> {
-    let text =
-        std::fs::read_to_string(p).map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
+    let text = std::fs::read_to_string(p)
+        .map_err(|e| Failure::user(format!("{}: cannot read the settings file ({e})", p.display())))?;
     Settings::from_json(&text).map_err(|e| Failure::about(p, e))
 }
 
@@ -196,7 +197,8 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     doc.check_writable(format).map_err(|e| Failure::about(&a.output, e))?;
     let progress = TerminalProgress::new(!a.json && std::io::stderr().is_terminal());
     let start = Instant::now();
-    let run = run_file::denoise_file(&doc, &settings, a.estimate_error, &progress).map_err(|e| Failure::about(&a.input, e));
+    let run =
+        run_file::denoise_file(&doc, &settings, a.estimate_error, &progress).map_err(|e| Failure::about(&a.input, e));
     progress.finish();
     let run = run?;
     let seconds = start.elapsed().as_secs_f64();
@@ -205,22 +207,32 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     write_file(&a.output, &bytes)?;
     if let (Some(path), Some(map)) = (&a.cut_map, &run.cut_map) {
         let scaled = patchgraph::Plane { data: map.data.iter().map(|v| v * 255.0).collect(), ..map.clone() };
-        let img = Image { width: map.width, height: map.height, depth: BitDepth::Eight, channels: vec![scaled], alpha: None };
-        let bytes = file::encode(&file::document_of(img, Format::Png), Format::Png, None).map_err(|e| Failure::about(path, e))?;
+        let img =
+            Image { width: map.width, height: map.height, depth: BitDepth::Eight, channels: vec![scaled], alpha: None };
+        let bytes = file::encode(&file::document_of(img, Format::Png), Format::Png, None)
+            .map_err(|e| Failure::about(path, e))?;
         write_file(path, &bytes)?;
     }
     let r = &run.reports[0];
     // Sigma in the file's own units (float and wide-integer data work on a scaled copy).
-    let data_sigma = |k: usize, r: &pipeline::RunReport| if r.stabilised { r.sigma_used } else { r.sigma_used * doc.unit_map(k).scale };
+    let data_sigma = |k: usize, r: &pipeline::RunReport| {
+        if r.stabilised {
+            r.sigma_used
+        } else {
+            r.sigma_used * doc.unit_map(k).scale
+        }
+    };
     let summary = doc.summary();
     if a.json {
         let units: Vec<_> = run
             .reports
             .iter()
             .enumerate()
-            .map(|(k, r)| json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(k, r),
+            .map(|(k, r)| {
+                json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(k, r),
                                   "stabilised": r.stabilised, "residual": r.residual,
-                                  "error_estimate": r.error_estimate}))
+                                  "error_estimate": r.error_estimate})
+            })
             .collect();
         let first = doc.unit(0).map_err(|e| Failure::about(&a.input, e))?;
         let v = json!({
@@ -259,7 +271,12 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             seconds
         );
         if doc.units() > 1 {
-            outln!("  {} pages, {} image(s) each, {} samples: every one denoised", summary.pages, summary.units / summary.pages, summary.sample.describe());
+            outln!(
+                "  {} pages, {} image(s) each, {} samples: every one denoised",
+                summary.pages,
+                summary.units / summary.pages,
+                summary.sample.describe()
+            );
         }
         outln!("  noise: {} ({})", r.noise.model, r.noise.sentence);
         if let Some(f) = &r.noise.fallback {
@@ -315,7 +332,13 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
                        "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks away from clipped levels; the mean over channels"});
         outln!("{v}");
     } else {
-        outln!("{}: {} noise; white-noise sigma {:.3} (grey levels of {} bits)", input.display(), fit.report.model, sigma, img.depth.bits());
+        outln!(
+            "{}: {} noise; white-noise sigma {:.3} (grey levels of {} bits)",
+            input.display(),
+            fit.report.model,
+            sigma,
+            img.depth.bits()
+        );
         outln!("  {}", fit.report.sentence);
         if let Some(f) = &fit.report.fallback {
             outln!("  note: {f}");
@@ -328,13 +351,21 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
                 if f.reliable { "" } else { " (too little range to trust the slope)" }
             );
             if let Some(p) = ch.photon {
-                outln!("    gain {:.4} grey levels per photon, offset {:.2}, read noise {:.3}", p.gain, p.offset, p.read_noise);
+                outln!(
+                    "    gain {:.4} grey levels per photon, offset {:.2}, read noise {:.3}",
+                    p.gain,
+                    p.offset,
+                    p.read_noise
+                );
             }
         }
         for (i, p) in fit.spectra_8.iter().enumerate() {
             if let Some(s) = p {
-                outln!("  plane {i}: 8 x 8 spectrum, low/high frequency ratio {:.2}{}", s.colour_ratio(),
-                    if s.is_coloured() { " (correlated)" } else { " (white)" });
+                outln!(
+                    "  plane {i}: 8 x 8 spectrum, low/high frequency ratio {:.2}{}",
+                    s.colour_ratio(),
+                    if s.is_coloured() { " (correlated)" } else { " (white)" }
+                );
             }
         }
     }
@@ -345,7 +376,12 @@ pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
     let a = read_document(clean, &DecodeLimits::default())?;
     let b = read_document(test, &DecodeLimits::default())?;
     if a.units() != b.units() {
-        return Err(Failure::user(format!("{}: {} images, the clean file has {}", test.display(), b.units(), a.units())));
+        return Err(Failure::user(format!(
+            "{}: {} images, the clean file has {}",
+            test.display(),
+            b.units(),
+            a.units()
+        )));
     }
     // Every image of a stack, each in the clean image's value map.
     let mut all = Vec::with_capacity(a.units());
@@ -357,9 +393,16 @@ pub fn metrics(clean: &Path, test: &Path, json_out: bool) -> CmdResult {
     let q = all[0].clone();
     if a.units() > 1 {
         let mean = |f: &dyn Fn(&metrics::Quality) -> f64| all.iter().map(f).sum::<f64>() / all.len() as f64;
-        let units: Vec<_> = all.iter().enumerate().map(|(k, q)| json!({"image": a.unit_label(k), "psnr": q.psnr, "ssim": q.ssim})).collect();
+        let units: Vec<_> = all
+            .iter()
+            .enumerate()
+            .map(|(k, q)| json!({"image": a.unit_label(k), "psnr": q.psnr, "ssim": q.ssim}))
+            .collect();
         if json_out {
-            outln!("{}", json!({"psnr": mean(&|q| q.psnr), "ssim": mean(&|q| q.ssim), "data_range": q.data_range, "units": units}));
+            outln!(
+                "{}",
+                json!({"psnr": mean(&|q| q.psnr), "ssim": mean(&|q| q.ssim), "data_range": q.data_range, "units": units})
+            );
         } else {
             outln!("mean over {} images: PSNR {:.3} dB, SSIM {:.4}", all.len(), mean(&|q| q.psnr), mean(&|q| q.ssim));
             for (k, q) in all.iter().enumerate() {
@@ -399,8 +442,16 @@ pub fn inspect(input: &Path, json_out: bool) -> CmdResult {
                        "big_tiff": m.big_tiff, "made_by": made_by});
         outln!("{v}");
     } else {
-        outln!("{}: {} {} x {}, {} samples, {} page(s), {} image(s) to denoise", input.display(), doc.format.info().name,
-            s.width, s.height, s.sample.describe(), s.pages, s.units);
+        outln!(
+            "{}: {} {} x {}, {} samples, {} page(s), {} image(s) to denoise",
+            input.display(),
+            doc.format.info().name,
+            s.width,
+            s.height,
+            s.sample.describe(),
+            s.pages,
+            s.units
+        );
         if let Some(r) = m.resolution {
             outln!("  resolution {} x {} per {:?}", r.x, r.y, r.unit);
         }

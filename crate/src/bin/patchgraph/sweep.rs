@@ -127,9 +127,15 @@ pub fn sweep(a: SweepArgs) -> CmdResult {
         rows.push((*v, e, start.elapsed().as_secs_f64()));
     }
     // The lowest estimated error (not PSNR: differences hold even where the level is estimated).
-    let best = rows.iter().filter(|r| r.1.applies && r.1.mse.is_some()).min_by(|x, y| x.1.mse.partial_cmp(&y.1.mse).unwrap_or(std::cmp::Ordering::Equal));
+    let best = rows
+        .iter()
+        .filter(|r| r.1.applies && r.1.mse.is_some())
+        .min_by(|x, y| x.1.mse.partial_cmp(&y.1.mse).unwrap_or(std::cmp::Ordering::Equal));
     let best_value = best.map(|b| b.0);
-    let mut csv = format!("{},estimated_psnr,psnr_spread,estimated_gain_db,estimated_mse,covered,lowest_error,note,seconds\n", a.parameter.name());
+    let mut csv = format!(
+        "{},estimated_psnr,psnr_spread,estimated_gain_db,estimated_mse,covered,lowest_error,note,seconds\n",
+        a.parameter.name()
+    );
     for (v, e, secs) in &rows {
         let note = e.note.clone().unwrap_or_default().replace(['"', ','], " ");
         csv.push_str(&format!(
