@@ -172,3 +172,49 @@ test('on a phone-sized window nothing runs off the side', async () => {
   await s.page.setViewportSize({ width: 1280, height: 800 });
   assert.ok(overflow <= 0, `the page is ${overflow} px wider than the window`);
 });
+
+test('every control can be reached and used from the keyboard, the patch group included', async () => {
+  // Tab order: every visible, enabled control is reached by Tab alone; of a group of radio buttons
+  // one is (arrow keys move within the group, as browsers do).
+  const want = await s.page.evaluate(() => {
+    const all = [...document.querySelectorAll('button, input, select, summary, [tabindex="0"]')]
+      .filter((e) => !e.disabled && e.checkVisibility() && e.tabIndex >= 0);
+    all.forEach((e, i) => { e.dataset.k = String(i); });
+    return all.map((e) => (e.type === 'radio' ? `radio:${e.name}` : e.dataset.k));
+  });
+  assert.ok(want.length > 30, `only ${want.length} controls found; the test would show nothing`);
+  const reached = new Set();
+  await s.page.evaluate(() => document.activeElement && document.activeElement.blur());
+  for (let i = 0; i < want.length * 2 + 10; i++) {
+    await s.page.keyboard.press('Tab');
+    reached.add(await s.page.evaluate(() => {
+      const e = document.activeElement;
+      return e && e.dataset.k !== undefined ? (e.type === 'radio' ? `radio:${e.name}` : e.dataset.k) : '';
+    }));
+  }
+  const missed = [...new Set(want)].filter((k) => !reached.has(k));
+  const names = await s.page.evaluate((ks) => ks.map((k) => {
+    const e = document.querySelector(`[data-k="${k}"]`);
+    return e ? (e.getAttribute('aria-label') || e.name || e.id || e.textContent.trim().slice(0, 30) || e.className) : k;
+  }), missed);
+  assert.deepEqual(names, [], 'not reached by Tab');
+
+  // The patch group from the keyboard: tick the box (Space), then Enter on the view draws the
+  // group at the view's centre; arrow keys move the view so any point can be brought there.
+  await pane(0).locator('.show-group').focus();
+  if (!(await pane(0).locator('.show-group').isChecked())) await s.page.keyboard.press('Space');
+  await pane(0).locator('.viewport').focus();
+  await s.page.keyboard.press('ArrowLeft');
+  await s.page.keyboard.press('Enter');
+  // The group comes from a worker: wait for the overlay to be drawn on.
+  await s.page.waitForFunction(() => {
+    const c = document.querySelector('.pane .overlay');
+    return c.getContext('2d').getImageData(0, 0, c.width, c.height).data.some((v, i) => i % 4 === 3 && v > 0);
+  }, null, { timeout: 30000 });
+  // X on the view flips to the other setting's result and back.
+  await s.page.keyboard.press('x');
+  assert.equal(await pane(0).locator('input[value=other]').isChecked(), true);
+  await s.page.keyboard.press('x');
+  assert.equal(await pane(0).locator('input[value=result]').isChecked(), true);
+  assert.deepEqual(s.consoleErrors, []);
+});
