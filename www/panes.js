@@ -5,25 +5,64 @@ import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 
+// Every form field: how it reads and writes the settings, and its one line of help (shown on
+// hover and listed under "What these settings do").
 const fields = {
-  method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
-  noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; } },
-  'pg-threshold': { get: (s) => s.patch_graph.threshold, set: (s, v) => { s.patch_graph.threshold = +v; } },
-  'pg-patch': { get: (s) => s.patch_graph.patch_size, set: (s, v) => { s.patch_graph.patch_size = +v; } },
+  method: { get: (s) => s.method, set: (s, v) => { s.method = v; },
+    help: 'Patch graph groups similar patches and cleans them together (best quality); pixel graph smooths along a graph of neighbouring pixels that is cut at edges (fast).' },
+  noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; },
+    help: 'What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.' },
+  'pg-threshold': { get: (s) => s.patch_graph.threshold, set: (s, v) => { s.patch_graph.threshold = +v; },
+    help: 'Coefficients below this many sigmas are taken for noise in the first pass. Higher: smoother, more fine detail lost.' },
+  'pg-patch': { get: (s) => s.patch_graph.patch_size, set: (s, v) => { s.patch_graph.patch_size = +v; },
+    help: 'Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.' },
   'pg-group': {
     get: (s) => s.patch_graph.group_size_hard,
     set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; },
+    help: 'Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.',
   },
-  'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; } },
-  'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; } },
-  'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; } },
-  'px-cut': { get: (s) => s.pixel_graph.cut_threshold, set: (s, v) => { s.pixel_graph.cut_threshold = +v; } },
-  'px-passes': { get: (s) => s.pixel_graph.passes, set: (s, v) => { s.pixel_graph.passes = +v; } },
+  'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; },
+    help: 'How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.' },
+  'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
+    help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
+  'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; },
+    help: 'Multiplies the smoothing chosen from sigma; 1 is the tuned default.' },
+  'px-cut': { get: (s) => s.pixel_graph.cut_threshold, set: (s, v) => { s.pixel_graph.cut_threshold = +v; },
+    help: 'Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.' },
+  'px-passes': { get: (s) => s.pixel_graph.passes, set: (s, v) => { s.pixel_graph.passes = +v; },
+    help: 'Times the graph is rebuilt from the last result and filtered again.' },
 };
+
+// Hover help on each field, and the same lines listed in the form's "What these settings do".
+function addHelp(form) {
+  const list = form.querySelector('.param-help dl');
+  for (const [name, fld] of Object.entries(fields)) {
+    const label = form.elements[name].closest('label');
+    label.title = fld.help;
+    const dt = document.createElement('dt');
+    dt.textContent = label.firstChild.textContent.trim();
+    dt.className = label.closest('.only-patch-graph') ? 'only-patch-graph' : label.closest('.only-pixel-graph') ? 'only-pixel-graph' : '';
+    const dd = document.createElement('dd');
+    dd.textContent = fld.help;
+    dd.className = dt.className;
+    list.append(dt, dd);
+  }
+}
 
 // One plain sentence from the residual checks. The limits are rules of thumb of ours (not from a
 // source): they hold for white noise; grainy (correlated) noise leaves a correlated residual.
 function verdict(m, report) {
+  return residualVerdict(m, report) + estimateVerdict(report.error_estimate);
+}
+
+// What the reference-free error estimate adds to the verdict, where it was given.
+function estimateVerdict(e) {
+  if (!e || !e.applies || e.gain_db === null || e.gain_db === undefined) return '';
+  if (e.gain_db < 0.5) return ` The estimated error says the result is hardly closer to the clean image than the input (${fmt(e.gain_db)} dB).`;
+  return ` The estimated error says the result is ${fmt(e.gain_db, 1)} dB closer to the clean image than the input.`;
+}
+
+function residualVerdict(m, report) {
   const correlatedNoise = /correlated/.test(report.noise.model);
   if (m.residual_edge_correlation > 0.15) return 'The removed part follows edges: some detail was removed with the noise.';
   if (m.residual_std_over_sigma > 1.15) return 'More than the noise was removed: fine detail may be lost.';
@@ -84,6 +123,7 @@ export class Pane {
     this.canvas = q('.picture');
     this.overlay = q('.overlay');
     this.viewport = q('.viewport');
+    addHelp(q('.controls'));
     this.writeForm();
     q('.controls').addEventListener('input', () => this.readForm());
     q('.controls').addEventListener('submit', (e) => e.preventDefault());

@@ -59,6 +59,12 @@ test('views are offered only where the method has them', async () => {
   await pane(1).locator('select[name=method]').selectOption('pixel-graph');
   assert.equal(await pane(1).locator('input[value=cuts]').isVisible(), true);
   assert.equal(await pane(1).locator('.show-group').isVisible(), false);
+  // Help for the parameters this method has, and only those.
+  await pane(1).locator('.param-help summary').click();
+  const help = await pane(1).locator('.param-help dt:visible').allTextContents();
+  assert.ok(help.includes('Edge cut (× sigma)') && !help.includes('Threshold (× sigma)'), help.join(' | '));
+  assert.match(await pane(1).locator('input[name=px-cut]').locator('..').getAttribute('title'), /edge/);
+  await pane(1).locator('.param-help summary').click();
   assert.deepEqual(s.consoleErrors, []);
 });
 

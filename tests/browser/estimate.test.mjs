@@ -35,6 +35,11 @@ test('with sigma given, both settings are estimated and the lower error is marke
   await runEstimated(0);
   const text = await pane(0).locator('.metrics').textContent();
   assert.match(text, /Estimated PSNR \(no reference\)\d+\.\d\d dB ± \d+\.\d\d, \+\d+\.\d\d dB over the input/);
+  // The plain verdict carries the same gain, to one decimal.
+  const gain = Number(text.match(/\+(\d+\.\d\d) dB over the input/)[1]);
+  const said = (await pane(0).locator('.verdict').textContent()).match(/the result is (\d+\.\d) dB closer to the clean image/);
+  assert.ok(said, await pane(0).locator('.verdict').textContent());
+  assert.equal(Number(said[1]), Number(gain.toFixed(1)));
   await s.page.locator('.pane').nth(1).locator('.run').click();
   await pane(1).locator('.metrics').filter({ hasText: /Estimated PSNR \(no reference\)\d/ }).waitFor({ timeout: 120000 });
   const shown = await s.page.locator('.best-note:visible').count();
