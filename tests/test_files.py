@@ -196,6 +196,25 @@ def test_png_keeps_density_profile_and_text(tmp_path, patchgraph):
     assert im.text["Software"].startswith("Patchgraph") and "method" in im.text["Patchgraph settings"]
 
 
+def test_jpeg_keeps_its_comment_and_orientation_and_records_the_run(tmp_path, patchgraph):
+    """Pillow (PyPI) writes a JPEG with a comment and EXIF orientation 6; written back as JPEG, the
+    comment and orientation are still there (Pillow reads them) and a second comment records the
+    program and the settings, so the result can be told from the original."""
+    noisy = (scene(seed=14) * 200 + np.random.default_rng(14).normal(0, 10, (64, 64))).clip(0, 255).astype(np.uint8)
+    src, out = tmp_path / "photo.jpg", tmp_path / "out.jpg"
+    exif = Image.Exif()
+    exif[0x0112] = 6
+    Image.fromarray(noisy).convert("RGB").save(src, quality=95, comment=b"field notes of our own", exif=exif)
+    patchgraph("denoise", src, "-o", out)
+    im = Image.open(out)
+    assert im.getexif().get(0x0112) == 6
+    # Pillow keeps the last comment in info; all comments are in the applist.
+    comments = [seg for marker, seg in im.applist if marker == "COM"]
+    assert b"field notes of our own" in comments, comments
+    made = [c for c in comments if c.startswith(b"Patchgraph ")]
+    assert len(made) == 1 and b'"method"' in made[0]
+
+
 @pytest.mark.parametrize("src_kind,out_name,hint", [
     ("float-tiff", "out.png", ".tif or .fits"),
     ("stack-tiff", "out.png", ".tif or .fits"),

@@ -114,7 +114,7 @@ pub const FORMATS: &[FormatInfo] = &[
         pages: false,
         alpha: false,
         bands: false,
-        keeps: "grey and RGB at 8 bits (lossy); ICC profile and EXIF (with its orientation) copied",
+        keeps: "grey and RGB at 8 bits (lossy); ICC profile, EXIF (with its orientation) and comments copied",
     },
     FormatInfo {
         format: Format::Bmp,

@@ -37,6 +37,9 @@ pub fn decode(bytes: &[u8], format: Format, limits: &DecodeLimits) -> Result<Doc
     if format == Format::Png {
         png_metadata(bytes, &mut meta);
     }
+    if format == Format::Jpeg {
+        meta.text.extend(jpeg_comments(bytes).into_iter().map(|c| ("Comment".to_string(), c)));
+    }
     let img = from_dynamic(DynamicImage::from_decoder(decoder).map_err(map_decode_error)?)?;
     let mut doc = super::document_of(img, format);
     doc.meta = meta;
@@ -190,10 +193,58 @@ pub fn encode(doc: &Document, format: Format, provenance: Option<&Provenance>) -
                 let _ = enc.set_exif_metadata(exif.clone());
             }
             enc.write_image(&data, w, h, colour).map_err(enc_err)?;
+            // The input's own comments kept, then the record of this run.
+            let kept = doc.meta.text.iter().filter(|(k, _)| k == "Comment").map(|(_, t)| t.clone());
+            for text in kept.chain(provenance.map(Provenance::sentence)).collect::<Vec<_>>().iter().rev() {
+                out = with_jpeg_comment(out, text);
+            }
         }
         _ => {
             image::codecs::bmp::BmpEncoder::new(&mut out).write_image(&data, w, h, colour).map_err(enc_err)?;
         }
     }
     Ok(out)
+}
+
+/// The segments before the image data of a JPEG: (marker, payload), from after SOI up to SOS.
+/// Stops quietly at anything malformed (the image decoder reports real damage).
+fn jpeg_segments(bytes: &[u8]) -> Vec<(u8, std::ops::Range<usize>)> {
+    let mut out = Vec::new();
+    let mut pos = 2;
+    while pos + 4 <= bytes.len() && bytes[pos] == 0xFF && bytes[pos + 1] != 0xDA {
+        let len = usize::from(u16::from_be_bytes([bytes[pos + 2], bytes[pos + 3]]));
+        if len < 2 || pos + 2 + len > bytes.len() {
+            break;
+        }
+        out.push((bytes[pos + 1], pos + 4..pos + 2 + len));
+        pos += 2 + len;
+    }
+    out
+}
+
+/// Comment (COM) segments of a JPEG, as text.
+fn jpeg_comments(bytes: &[u8]) -> Vec<String> {
+    jpeg_segments(bytes)
+        .into_iter()
+        .filter(|(m, _)| *m == 0xFE)
+        .map(|(_, r)| String::from_utf8_lossy(&bytes[r]).into_owned())
+        .collect()
+}
+
+/// The JPEG with a comment segment holding `text` after its application segments (JFIF and EXIF
+/// stay first, as readers expect). Text too long for one segment is not written.
+fn with_jpeg_comment(jpeg: Vec<u8>, text: &str) -> Vec<u8> {
+    let payload = text.as_bytes();
+    if payload.len() > usize::from(u16::MAX) - 2 || jpeg.len() < 2 {
+        return jpeg;
+    }
+    let at =
+        jpeg_segments(&jpeg).iter().take_while(|(m, _)| (0xE0..=0xEF).contains(m)).last().map_or(2, |(_, r)| r.end);
+    let mut out = Vec::with_capacity(jpeg.len() + payload.len() + 4);
+    out.extend_from_slice(&jpeg[..at]);
+    out.extend_from_slice(&[0xFF, 0xFE]);
+    out.extend_from_slice(&((payload.len() + 2) as u16).to_be_bytes());
+    out.extend_from_slice(payload);
+    out.extend_from_slice(&jpeg[at..]);
+    out
 }

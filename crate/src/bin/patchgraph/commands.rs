@@ -426,11 +426,11 @@ pub fn inspect(input: &Path, json_out: bool) -> CmdResult {
     let doc = read_document(input, &DecodeLimits::default())?;
     let s = doc.summary();
     let m = &doc.meta;
-    // What records the making: TIFF Software, PNG text, FITS HISTORY.
+    // What records the making: TIFF Software, PNG text, JPEG comment, FITS HISTORY.
     let made_by: Vec<String> = m
         .text
         .iter()
-        .filter(|(k, _)| k == "Software")
+        .filter(|(k, t)| k == "Software" || (k == "Comment" && t.starts_with("Patchgraph ")))
         .map(|(_, t)| t.clone())
         .chain(m.software.clone())
         .chain(m.fits_cards.iter().filter(|c| c.keyword_str() == "HISTORY").filter_map(|c| c.comment.clone()).take(1))
