@@ -294,3 +294,21 @@ def test_metrics_of_a_float_stack_match_scikit_image_page_by_page(tmp_path, patc
     for k in range(3):
         want = peak_signal_noise_ratio(clean[k].astype(float), noisy[k].astype(float), data_range=65535 * scale)
         assert abs(q["units"][k]["psnr"] - want) < 0.01, (k, q["units"][k]["psnr"], want)
+
+
+def test_noise_fits_the_image_of_a_stack_asked_for(tmp_path, patchgraph):
+    """A 3-page 16-bit stack (tifffile) whose pages carry white noise of std 40, 160 and 80: the
+    noise command fits the page asked for (closed form: the std drawn, within 10%), and a page that
+    is not there is one clear sentence, exit 2."""
+    stds = (40.0, 160.0, 80.0)
+    rng = np.random.default_rng(21)
+    pages = [(20000 + 10000 * scene(128, 128, seed=k) + rng.normal(0, s, (128, 128))).astype(np.uint16)
+             for k, s in enumerate(stds)]
+    src = tmp_path / "stack.tif"
+    tifffile.imwrite(src, np.stack(pages), photometric="minisblack")
+    for number, want in enumerate(stds, start=1):
+        got = patchgraph("noise", src, "--image", number)
+        assert (got["image"], got["images"]) == (number, 3)
+        assert abs(got["sigma"] / want - 1) < 0.10, (number, got["sigma"], want)
+    r = run("noise", src, "--image", 4)
+    assert r.returncode == 2 and "there is no image 4; the file holds 3" in r.stderr, r.stderr

@@ -50,9 +50,17 @@ pub fn read_document(path: &Path, limits: &DecodeLimits) -> Result<Document, Fai
 }
 
 /// The first image of a file, for the commands that look at one image (`noise`, `metrics`).
-fn read_image(path: &Path, limits: &DecodeLimits) -> Result<(Image, Document), Failure> {
+/// Image `number` (1-based) of the file, with the file.
+fn read_image(path: &Path, number: usize, limits: &DecodeLimits) -> Result<(Image, Document), Failure> {
     let doc = read_document(path, limits)?;
-    let img = doc.unit(0).map_err(|e| Failure::about(path, e))?;
+    if number == 0 || number > doc.units() {
+        return Err(Failure::user(format!(
+            "{}: there is no image {number}; the file holds {} (numbered from 1)",
+            path.display(),
+            doc.units()
+        )));
+    }
+    let img = doc.unit(number - 1).map_err(|e| Failure::about(path, e))?;
     Ok((img, doc))
 }
 
@@ -304,10 +312,11 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     Ok(())
 }
 
-pub fn noise(input: &Path, json_out: bool) -> CmdResult {
-    let (img, doc) = read_image(input, &DecodeLimits::default())?;
+pub fn noise(input: &Path, number: usize, json_out: bool) -> CmdResult {
+    let (img, doc) = read_image(input, number, &DecodeLimits::default())?;
     if doc.units() > 1 && !json_out {
-        outln!("{}: the first of {} images ({})", input.display(), doc.units(), doc.unit_label(0));
+        let label = doc.unit_label(number - 1);
+        outln!("{}: image {number} of {} ({label}); --image N fits another", input.display(), doc.units());
     }
     let fit = pipeline::fit_noise(&img).map_err(|e| Failure::about(input, e))?;
     // The white estimates in the input's own grey levels, whatever domain the model works in.
@@ -326,7 +335,7 @@ pub fn noise(input: &Path, json_out: bool) -> CmdResult {
                        "photon": c.photon})
             })
             .collect();
-        let v = json!({"sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
+        let v = json!({"image": number, "images": doc.units(), "sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
                        "model": fit.report.model, "explanation": fit.report.sentence, "fallback": fit.report.fallback,
                        "planes": fit.report.planes, "spectra_8x8": fit.spectra_8,
                        "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks away from clipped levels; the mean over channels"});

@@ -42,8 +42,11 @@ enum Command {
     Denoise(commands::DenoiseArgs),
     /// Fit the noise of an image: level per channel, how it grows with brightness, its spectrum.
     Noise {
-        /// The image (its first image, for stacks).
+        /// The image file.
         input: PathBuf,
+        /// Which image of a stack or cube to fit (1 = the first); `inspect` lists them.
+        #[arg(long, default_value_t = 1)]
+        image: usize,
         /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
@@ -115,7 +118,7 @@ fn main() -> ExitCode {
     };
     let result = match cli.command {
         Command::Denoise(args) => commands::denoise(args),
-        Command::Noise { input, json } => commands::noise(&input, json),
+        Command::Noise { input, image, json } => commands::noise(&input, image, json),
         Command::Batch { inputs, output, settings, shard, json } => {
             batch::batch(&inputs, &output, settings.as_deref(), shard.as_deref(), json)
         }
