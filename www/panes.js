@@ -58,6 +58,7 @@ function verdict(m, report) {
 // What the reference-free error estimate adds to the verdict, where it was given.
 function estimateVerdict(e) {
   if (!e || !e.applies || e.gain_db === null || e.gain_db === undefined) return '';
+  if (e.gain_db < 0) return ` The estimated error says the result is further from the clean image than the input (${fmt(e.gain_db)} dB).`;
   if (e.gain_db < 0.5) return ` The estimated error says the result is hardly closer to the clean image than the input (${fmt(e.gain_db)} dB).`;
   return ` The estimated error says the result is ${fmt(e.gain_db, 1)} dB closer to the clean image than the input.`;
 }
