@@ -230,7 +230,7 @@ function wireBatch() {
 function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
   const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
-    'search_radius', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
+    'search_radius', 'graph', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
     'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';

@@ -23,6 +23,8 @@ const fields = {
   },
   'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; },
     help: 'How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.' },
+  'px-graph': { get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
+    help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own.' },
   'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
     help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
   'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; },
@@ -325,6 +327,7 @@ export class Pane {
       patch_size: st.method === 'patch-graph' ? st.patch_graph.patch_size : null,
       group_size: st.method === 'patch-graph' ? st.patch_graph.group_size_hard : null,
       search_radius: st.method === 'patch-graph' ? st.patch_graph.search_radius : null,
+      graph: st.method === 'pixel-graph' ? st.pixel_graph.graph : null,
       filter: st.method === 'pixel-graph' ? st.pixel_graph.filter : null,
       strength: st.method === 'pixel-graph' ? st.pixel_graph.strength : null,
       edge_cut: st.method === 'pixel-graph' ? st.pixel_graph.cut_threshold : null,
@@ -475,7 +478,9 @@ export class Pane {
         : 'No result yet: press Run. Showing the input.',
       detail: r && r.detail ? `Red: where the removed part follows the result's own structure (its local correlation with the result's detail is above 0.4 over 9 × 9 pixels), so detail went with the noise there: ${fmt(100 * r.detailShare, 1)}% of the image.`
         : r ? 'Not drawn for images over 16 megapixels. Showing the input.' : 'No result yet: press Run. Showing the input.',
-      cuts: r && r.cuts ? 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.'
+      cuts: r && r.cuts ? (this.settings.pixel_graph.graph === 'non-local'
+        ? 'Cut map of the non-local graph: the share of the 7 × 7 window a pixel is not joined to; darker where it is joined to more (smoothed more).'
+        : 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.')
         : 'No cut map: it comes with a pixel-graph run. Showing the input.',
       other: theirs ? `${them}'s result, in this view (X on the view flips back and forth).` : `${them} has no result yet. Showing the input.`,
       split: both ? `Left of the white line: Setting ${this.name}; right: ${them}. Drag the line's handle (or use the slider) to move it.` : needBoth,

@@ -74,9 +74,21 @@ pub enum GraphFilter {
     Heat,
 }
 
+/// Which pixels the pixel graph joins.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum PixelGraphKind {
+    /// Every neighbour within `radius`, with edges cut across intensity discontinuities.
+    CutGrid,
+    /// Each pixel joined to its most similar pixels (by patch distance) in a 7 x 7 window.
+    NonLocal,
+}
+
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PixelGraphSettings {
+    /// Which pixels the graph joins.
+    pub graph: PixelGraphKind,
     pub filter: GraphFilter,
     /// Multiplies the smoothing amount chosen from sigma (gamma or t): 1 is the tuned default.
     pub strength: f64,
@@ -97,6 +109,7 @@ pub struct PixelGraphSettings {
 impl Default for PixelGraphSettings {
     fn default() -> Self {
         PixelGraphSettings {
+            graph: PixelGraphKind::CutGrid,
             filter: GraphFilter::Tikhonov,
             strength: 1.0,
             weight_scale: 0.4,

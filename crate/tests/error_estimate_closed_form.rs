@@ -25,7 +25,10 @@ fn image(data: Vec<f32>) -> Image {
 /// The filter's matrix: (I + gamma L)^-1 for the grid graph of a two-level guide.
 fn tikhonov_matrix() -> DMatrix<f64> {
     let guide = Plane::from_fn(W, H, |x, _| if x < W / 2 { 60.0 } else { 170.0 });
-    let g = GridGraph::build(&guide, &GridParams { radius: 1, patch_radius: 0, h: 20.0, tau: 60.0, guide_noise: 0.0 });
+    let g = GridGraph::build(
+        &guide,
+        &GridParams { radius: 1, patch_radius: 0, h: 20.0, tau: 60.0, guide_noise: 0.0, keep_nearest: 0 },
+    );
     let n = W * H;
     let mut l = DMatrix::zeros(n, n);
     let mut col = vec![0.0; n];

@@ -72,7 +72,7 @@ fn random_grid(w: usize, h: usize, seed: u64) -> Plane {
 }
 
 fn grid_params() -> GridParams {
-    GridParams { radius: 2, patch_radius: 1, h: 20.0, tau: 60.0, guide_noise: 5.0 }
+    GridParams { radius: 2, patch_radius: 1, h: 20.0, tau: 60.0, guide_noise: 5.0, keep_nearest: 0 }
 }
 
 #[test]
@@ -139,4 +139,57 @@ fn gershgorin_bound_covers_the_spectrum() {
     let g = GridGraph::build(&random_grid(8, 6, 5), &grid_params());
     let top = *sorted_eigenvalues(&dense(&g.to_csr())).last().unwrap();
     assert!(g.lambda_max_bound() >= top - 1e-9);
+}
+
+fn non_local_params() -> GridParams {
+    GridParams { radius: 3, patch_radius: 1, h: 20.0, tau: f64::INFINITY, guide_noise: 5.0, keep_nearest: 8 }
+}
+
+#[test]
+fn non_local_graph_is_a_symmetric_laplacian_with_k_neighbours_each() {
+    // Invariants: the stencil equals its CSR Laplacian (which sprs builds symmetric from the edge
+    // list), constants are in its null space, and every pixel keeps at least its 8 most similar
+    // neighbours (an edge stays when either end keeps it, so some pixels have more).
+    let (w, h) = (12, 10);
+    let g = GridGraph::build(&random_grid(w, h, 5), &non_local_params());
+    let csr = g.to_csr();
+    let d = dense(&csr);
+    assert!((d.clone() - d.transpose()).amax() < 1e-12);
+    let mut c = vec![0.0; w * h];
+    g.apply(&vec![1.0; w * h], &mut c);
+    assert!(c.iter().all(|v| v.abs() < 1e-9));
+    for i in 0..w * h {
+        let joined = (0..w * h).filter(|&j| j != i && d[(i, j)] < 0.0).count();
+        assert!(joined >= 8, "pixel {i} joined to {joined}");
+    }
+    let x: Vec<f64> = (0..w * h).map(|i| ((i * 37) % 11) as f64 - 5.0).collect();
+    let (mut a, mut b) = (vec![0.0; w * h], vec![0.0; w * h]);
+    g.apply(&x, &mut a);
+    csr.apply(&x, &mut b);
+    assert!(a.iter().zip(&b).all(|(p, q)| (p - q).abs() < 1e-9));
+}
+
+#[test]
+fn non_local_neighbours_stay_on_their_side_of_an_edge() {
+    // Invariant: across a step of 120 grey levels with noise of std 5, a pixel's 8 most similar
+    // pixels in its 7 x 7 window are on its own side (each side holds at least 21 of them), so no
+    // edge crosses the step although nothing is cut by a threshold. With 3 x 3 patches, only the
+    // two columns whose patches straddle the step look alike across it (the patch distance cannot
+    // tell them apart), so crossing edges may join those two columns and no others.
+    let (w, h) = (16, 16);
+    let mut rng = patchgraph::synth::Rng::new(9);
+    let p = Plane::from_fn(w, h, |x, _| if x < 8 { 60.0 } else { 180.0 });
+    let p = Plane { data: p.data.iter().map(|v| v + 5.0 * rng.normal() as f32).collect(), ..p };
+    for patch_radius in [0, 1] {
+        let g = GridGraph::build(&p, &GridParams { patch_radius, ..non_local_params() });
+        let d = dense(&g.to_csr());
+        for i in 0..w * h {
+            for j in 0..w * h {
+                if i != j && d[(i, j)] < 0.0 && (i % w < 8) != (j % w < 8) {
+                    let straddle = |k: usize| k % w == 7 || k % w == 8;
+                    assert!(patch_radius == 1 && straddle(i) && straddle(j), "edge {i} - {j} crosses the step");
+                }
+            }
+        }
+    }
 }

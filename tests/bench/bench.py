@@ -80,8 +80,11 @@ PG_RUNS = [
     # The same with a fixed basis across each group (all group-graph weights 1): the graph must
     # at least equal it everywhere and beat it where structure varies within a group.
     ("Patchgraph patch-graph, blind, fixed group basis", False, "patch-graph"),
+    # The pixel graph joined by similarity (pixel_graph.graph = non-local) instead of the cut grid.
+    ("Patchgraph pixel-graph, blind, non-local graph", False, "pixel-graph"),
 ]
 UNIFORM = "Patchgraph patch-graph, blind, fixed group basis"
+NONLOCAL = "Patchgraph pixel-graph, blind, non-local graph"
 
 
 def colour_peers():
@@ -182,6 +185,10 @@ def main():
     uniform = os.path.join(work, "uniform.json")
     with open(uniform, "w") as f:
         json.dump({"patch_graph": {"group_graph": "uniform"}}, f)
+    nonlocal_graph = os.path.join(work, "non-local.json")
+    with open(nonlocal_graph, "w") as f:
+        json.dump({"pixel_graph": {"graph": "non-local"}}, f)
+    variant = {UNIFORM: uniform, NONLOCAL: nonlocal_graph}
     per_image = {}  # (image, sigma) -> {method: psnr}
     rows = {}  # (method, sigma) -> list of (psnr, ssim)
     times = {}  # method -> list of (seconds, megapixels)
@@ -194,7 +201,7 @@ def main():
         mp = clean.size / 1e6
         for label, sig, method in PG_RUNS:
             opath = os.path.join(work, f"{name}-s{s}-pg.png")
-            extra = ["--method", method] + (["--settings", uniform] if label == UNIFORM else [])
+            extra = ["--method", method] + (["--settings", variant[label]] if label in variant else [])
             report, rss = run_patchgraph(exe, npath, opath, s if sig else None, extra)
             add(label, s, clean, io.imread(opath))
             per_image.setdefault((name, s), {})[label] = rows[(label, s)][-1][0]
@@ -221,8 +228,10 @@ def main():
     for (name, s), cell in per_image.items():
         peer = max(PEERS, key=lambda p: cell[p])
         pg, uni, px = cell["Patchgraph patch-graph, blind"], cell[UNIFORM], cell["Patchgraph pixel-graph, blind"]
-        per_image_lines.append(f"| {name} | {s} | {pg:.2f} | {uni:.2f} ({pg - uni:+.2f}) | {px:.2f} | {cell[peer]:.2f} ({peer}) | "
-                               f"{pg - cell[peer]:+.2f} | {px - cell[peer]:+.2f} |")
+        nl = cell[NONLOCAL]
+        per_image_lines.append(f"| {name} | {s} | {pg:.2f} | {uni:.2f} ({pg - uni:+.2f}) | {px:.2f} | {nl:.2f} | "
+                               f"{cell[peer]:.2f} ({peer}) | {pg - cell[peer]:+.2f} | {px - cell[peer]:+.2f} | "
+                               f"{nl - cell[peer]:+.2f} |")
     table = []
     methods = [label for label, _, _ in PG_RUNS]
     for peer, (_, grid) in PEERS.items():
@@ -308,8 +317,9 @@ def main():
         "",
         "Images: " + devset.__doc__.split("\n\n", 1)[1].replace("\n", " "),
         "",
-        "| image | sigma | patch-graph | fixed group basis (graph gain) | pixel-graph | best tuned peer | patch-graph - peer | pixel-graph - peer |",
-        "|---|---|---|---|---|---|---|---|",
+        "| image | sigma | patch-graph | fixed group basis (graph gain) | pixel-graph | pixel-graph, non-local | best tuned peer | "
+        "patch-graph - peer | pixel-graph - peer | non-local - peer |",
+        "|---|---|---|---|---|---|---|---|---|---|",
         *per_image_lines,
         "",
         "## Colour (RGB): mean PSNR (dB)",
@@ -344,7 +354,7 @@ def main():
         "",
         "| method | median seconds per megapixel, dev set |",
         "|---|---|",
-        *[f"| {m} | {spm(m):.3f} |" for m in ["Patchgraph patch-graph, blind", "Patchgraph pixel-graph, blind", *PEERS]],
+        *[f"| {m} | {spm(m):.3f} |" for m in ["Patchgraph patch-graph, blind", "Patchgraph pixel-graph, blind", NONLOCAL, *PEERS]],
         "",
         f"2048 x 2048 grey, sigma 25, one thread (median of 3): Patchgraph pixel-graph {big_sec:.2f} s "
         f"({big_sec / 4.194304:.3f} s/MP), OpenCV fastNlMeans {cv_big:.2f} s ({cv_big / 4.194304:.3f} s/MP); "

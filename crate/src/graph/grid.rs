@@ -25,6 +25,10 @@ pub struct GridParams {
     /// Noise std left in the guide: 2 guide_noise^2 is what two equal patches differ by on
     /// average, so it is subtracted from the distance (as non-local means does).
     pub guide_noise: f64,
+    /// 0: every neighbour in the radius not cut by `tau` (the cut grid). k > 0: the non-local
+    /// graph: each pixel keeps its k most similar neighbours in the window (by patch distance),
+    /// and an edge stays if either end keeps it, so the graph is symmetric.
+    pub keep_nearest: usize,
 }
 
 pub struct GridGraph {
@@ -110,7 +114,55 @@ impl GridGraph {
             }
             weights.push(wk);
         }
-        GridGraph { width: w, height: h, offsets, weights, degree, cuts }
+        let mut g = GridGraph { width: w, height: h, offsets, weights, degree, cuts };
+        if p.keep_nearest > 0 {
+            g.keep_nearest(p.keep_nearest);
+        }
+        g
+    }
+
+    /// Drops every edge that is not among the `k` heaviest of either end (weights fall with the
+    /// patch distance, so heaviest = most similar); dropped edges count as cut.
+    fn keep_nearest(&mut self, k: usize) {
+        let n = self.width * self.height;
+        let deltas: Vec<usize> =
+            self.offsets.iter().map(|&(dx, dy)| (dy * self.width as isize + dx).max(0) as usize).collect();
+        // The k-th heaviest edge weight at each pixel, over the edges stored at it and at the
+        // pixels before it that point to it.
+        let mut buf = Vec::with_capacity(2 * deltas.len());
+        let kth: Vec<f32> = (0..n)
+            .map(|i| {
+                buf.clear();
+                for (m, &d) in deltas.iter().enumerate() {
+                    buf.push(self.weights[m][i]);
+                    if d > 0 && i >= d {
+                        buf.push(self.weights[m][i - d]);
+                    }
+                }
+                if buf.len() <= k {
+                    return 0.0;
+                }
+                *buf.select_nth_unstable_by(k - 1, |a, b| b.total_cmp(a)).1
+            })
+            .collect();
+        self.degree.iter_mut().for_each(|d| *d = 0.0);
+        for (m, &d) in deltas.iter().enumerate() {
+            for i in 0..n.saturating_sub(d) {
+                let wt = self.weights[m][i];
+                if wt <= 0.0 || d == 0 {
+                    continue;
+                }
+                let j = i + d;
+                if wt < kth[i] && wt < kth[j] {
+                    self.weights[m][i] = 0.0;
+                    self.cuts[i] = self.cuts[i].saturating_add(1);
+                    self.cuts[j] = self.cuts[j].saturating_add(1);
+                } else {
+                    self.degree[i] += f64::from(wt);
+                    self.degree[j] += f64::from(wt);
+                }
+            }
+        }
     }
 
     /// Visits every stored edge (i, j, w) with w > 0.

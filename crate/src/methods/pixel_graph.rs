@@ -7,18 +7,34 @@ use crate::error::{Error, Result};
 use crate::graph::{cg, chebyshev, grid::GridGraph, grid::GridParams, LinearOperator, Shifted};
 use crate::planes::{gaussian_blur, gaussian_noise_gain, Plane};
 use crate::progress::{check, Progress, SubProgress};
-use crate::settings::{GraphFilter, PixelGraphSettings};
+use crate::settings::{GraphFilter, PixelGraphKind, PixelGraphSettings};
+
+/// The non-local graph: a 7 x 7 window, each pixel's 8 most similar neighbours kept (an edge
+/// stays when either end keeps it, so about 10 per pixel), no intensity cut (the choice of
+/// neighbours does that work).
+const NONLOCAL_RADIUS: usize = 3;
+const NONLOCAL_NEIGHBOURS: usize = 8;
 
 /// Smoothing amount for a given sigma, on the 8-bit scale so 16-bit data behaves the same.
 /// The constants were fitted on the development set by the benchmark (see BENCHMARKS.md).
 /// Exponent of the sigma dependence; the weights already scale with sigma, so it is small.
 const P_TIKHONOV: f64 = -0.3;
 
-pub fn smoothing_amount(filter: GraphFilter, sigma8: f64, strength: f64) -> f64 {
+/// The non-local graph's weights do not fall with the noise as the cut grid's do (its neighbours
+/// are chosen as the most similar, whatever the level), so its amount stays flat in sigma: the
+/// cut grid's at sigma 10, 1.3x at 25, 1.6x at 50, as the dev set chose (strengths 0.7 / 1 / 1.4
+/// tried at each level).
+const NONLOCAL_AMOUNT: f64 = 2.6;
+
+pub fn smoothing_amount(filter: GraphFilter, graph: PixelGraphKind, sigma8: f64, strength: f64) -> f64 {
     let rel = (sigma8 / 25.0).max(0.0);
+    let base = match graph {
+        PixelGraphKind::CutGrid => 2.0 * rel.powf(P_TIKHONOV),
+        PixelGraphKind::NonLocal => NONLOCAL_AMOUNT,
+    };
     match filter {
-        GraphFilter::Tikhonov => strength * 2.0 * rel.powf(P_TIKHONOV),
-        GraphFilter::Heat => strength * 1.0 * rel.powf(P_TIKHONOV),
+        GraphFilter::Tikhonov => strength * base,
+        GraphFilter::Heat => strength * 0.5 * base,
     }
 }
 
@@ -38,13 +54,15 @@ pub fn denoise(
         return Ok(MethodOutput { planes: planes.to_vec(), cut_map: None, work_units: 0 });
     }
     let sigma8 = sigma * 255.0 / max_value;
-    let amount = smoothing_amount(s.filter, sigma8, s.strength);
+    let amount = smoothing_amount(s.filter, s.graph, sigma8, s.strength);
+    let non_local = s.graph == PixelGraphKind::NonLocal;
     let mut params = GridParams {
-        radius: s.radius as usize,
+        radius: if non_local { NONLOCAL_RADIUS } else { s.radius as usize },
         patch_radius: s.patch_radius as usize,
         h: s.weight_scale * sigma,
-        tau: s.cut_threshold * sigma,
+        tau: if non_local { f64::INFINITY } else { s.cut_threshold * sigma },
         guide_noise: sigma * gaussian_noise_gain(s.guide_blur),
+        keep_nearest: if non_local { NONLOCAL_NEIGHBOURS } else { 0 },
     };
     let mut guide = gaussian_blur(first, s.guide_blur);
     let mut out = planes.to_vec();
