@@ -24,7 +24,7 @@ const fields = {
   'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; },
     help: 'How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.' },
   'px-graph': { get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
-    help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own.' },
+    help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
   'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
     help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
   'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; },

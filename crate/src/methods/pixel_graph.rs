@@ -9,9 +9,9 @@ use crate::planes::{gaussian_blur, gaussian_noise_gain, Plane};
 use crate::progress::{check, Progress, SubProgress};
 use crate::settings::{GraphFilter, PixelGraphKind, PixelGraphSettings};
 
-/// The non-local graph: a 7 x 7 window, each pixel's 8 most similar neighbours kept (an edge
-/// stays when either end keeps it, so about 10 per pixel), no intensity cut (the choice of
-/// neighbours does that work).
+/// The non-local graph: a 7 x 7 window, each pixel's 8 most similar neighbours kept (ties too, so
+/// flat areas, where the noise cannot tell patches apart, keep the whole window); an edge stays
+/// when either end keeps it. No intensity cut: the choice of neighbours does that work.
 const NONLOCAL_RADIUS: usize = 3;
 const NONLOCAL_NEIGHBOURS: usize = 8;
 
