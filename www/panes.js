@@ -166,6 +166,7 @@ export class Pane {
     f.elements.sigma.disabled = auto;
     if (!auto) f.elements.sigma.value = this.settings.sigma;
     this.el.dataset.method = this.settings.method;
+    this.el.dataset.graph = this.settings.pixel_graph.graph;
   }
 
   // With "Estimate sigma" on, the sigma box shows the image's estimate (in the file's units), so
@@ -182,6 +183,7 @@ export class Pane {
     f.elements.sigma.disabled = auto;
     this.settings.sigma = auto ? 'auto' : Number(f.elements.sigma.value);
     this.el.dataset.method = this.settings.method;
+    this.el.dataset.graph = this.settings.pixel_graph.graph;
     this.app.remember();
     this.markStale();
   }

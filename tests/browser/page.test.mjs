@@ -81,6 +81,8 @@ test('two settings run side by side, differ, and match the CLI', async () => {
   await page.waitForFunction(() => /chart-clean/.test(document.getElementById('reference-info').textContent));
   // Setting B (pixel graph) on its non-local graph, so the CLI check below covers it too.
   await page.locator('.pane').nth(1).locator('select[name=px-graph]').selectOption('non-local');
+  // The edge cut does nothing on that graph, so it is not offered (invariant of the form).
+  assert.equal(await page.locator('.pane').nth(1).locator('input[name=px-cut]').isVisible(), false);
   // Both start before either ends: clicks one after the other (concurrent clicks can interleave
   // their mouse events), then both runs are awaited.
   await page.locator('.pane').nth(0).locator('.run').click();
