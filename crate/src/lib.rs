@@ -20,6 +20,7 @@ pub mod progress;
 pub mod removed_detail;
 pub mod run_file;
 pub mod settings;
+pub mod stack;
 pub mod synth;
 #[cfg(target_arch = "wasm32")]
 pub mod wasm;

@@ -39,6 +39,9 @@ pub struct RunReport {
     /// The result's error estimated without a reference, when asked for ([`denoise_estimated`]).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub error_estimate: Option<ErrorEstimate>,
+    /// A slice of a stack denoised as a volume: how many neighbouring slices lent their patches.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub slices_joined: Option<usize>,
 }
 
 pub struct RunOutput {
@@ -65,6 +68,7 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
 /// An image made ready for a method: the noise model applied (`working`: the image's own planes,
 /// borrowed, unless photon noise is stabilised), with the sigma and range the method works with
 /// and the noise report. [`method_planes`] gives the planes a method takes.
+#[derive(Clone)]
 pub struct Prepared<'a> {
     /// Per input channel, when the working domain is stabilised (photon noise or a measured curve).
     pub stabilisers: Option<Vec<Stabiliser>>,
@@ -79,6 +83,11 @@ pub struct Prepared<'a> {
 }
 
 impl Prepared<'_> {
+    /// The same, holding its own copy of the working planes (to be kept beside other slices').
+    pub fn into_owned(self) -> Prepared<'static> {
+        Prepared { working: Cow::Owned(self.working.into_owned()), ..self }
+    }
+
     /// Per method plane, the noise spectra when the noise is correlated.
     pub fn spectra(&self) -> Option<Vec<NoiseSpectrum>> {
         self.noise.planes.iter().map(|p| p.spectrum.clone()).collect()
@@ -443,6 +452,7 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
             residual,
             work_units,
             error_estimate: None,
+            slices_joined: None,
         },
         cut_map,
     }

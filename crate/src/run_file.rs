@@ -1,13 +1,15 @@
 //! A whole file through runs: every page and independent channel denoised with the same
 //! settings, one after another, into a copy of the document (the input is never altered).
 
-use crate::error::Result;
+use crate::error::{Error, Result};
+use crate::error_estimate::ErrorEstimate;
 use crate::file::samples::ValueMap;
 use crate::file::Document;
 use crate::pipeline::{self, RunReport};
 use crate::planes::Plane;
 use crate::progress::{Labelled, Progress};
 use crate::settings::{AutoOr, Settings};
+use crate::stack;
 
 pub struct FileRun {
     pub document: Document,
@@ -35,13 +37,16 @@ pub fn in_working_units(s: &Settings, map: ValueMap) -> Settings {
 }
 
 /// With `estimate_error`, each unit's report carries its error estimate (one more pass per unit),
-/// in the file's own units.
+/// in the file's own units. Stacks go through [`denoise_stack`] when the settings ask for it.
 pub fn denoise_file(
     doc: &Document,
     settings: &Settings,
     estimate_error: bool,
     progress: &dyn Progress,
 ) -> Result<FileRun> {
+    if stack::applies(settings, doc.pages.len()) {
+        return denoise_stack(doc, settings, estimate_error, progress);
+    }
     let n = doc.units();
     let mut out = doc.clone();
     let mut reports = Vec::with_capacity(n);
@@ -67,4 +72,59 @@ pub fn denoise_file(
         }
     }
     Ok(FileRun { document: out, reports, cut_map })
+}
+
+/// Why a stack run carries no error estimate.
+pub const NO_ESTIMATE_FOR_STACKS: &str = "the error estimate is made for images denoised alone; set \
+     patch_graph.neighbour_slices to 0 to denoise each page alone and estimate its error";
+
+/// A stack denoised as a volume ([`stack`]): each channel's images through the pages, every one
+/// in the value scale of the channel's first page (float pages may each have their own), each
+/// result put back in its own.
+/// With `estimate_error`, the reports say why there is no estimate.
+pub fn denoise_stack(
+    doc: &Document,
+    settings: &Settings,
+    estimate_error: bool,
+    progress: &dyn Progress,
+) -> Result<FileRun> {
+    let mut out = doc.clone();
+    let mut reports: Vec<Option<RunReport>> = vec![None; doc.units()];
+    let series = doc.slice_series();
+    let mut cut_map = None;
+    for (c, units) in series.iter().enumerate() {
+        let span = 1.0 / series.len() as f32;
+        let sub = Labelled { parent: progress, start: c as f32 * span, span, label: channel_label(c, series.len()) };
+        let base = doc.unit_map(units[0]);
+        let working = in_working_units(settings, base);
+        let load = |z: usize| doc.unit_in(units[z], base);
+        let mut emit = |z: usize, mut run: crate::pipeline::RunOutput| -> Result<()> {
+            let k = units[z];
+            let own = doc.unit_map(k);
+            if own != base {
+                for p in &mut run.image.channels {
+                    p.data.iter_mut().for_each(|v| *v = own.to_working(base.to_stored(*v)));
+                }
+            }
+            if estimate_error {
+                let top = f64::from(run.image.max_value());
+                run.report.error_estimate = Some(ErrorEstimate::none(NO_ESTIMATE_FOR_STACKS.into(), top));
+            }
+            out.set_unit(k, run.image)?;
+            reports[k] = Some(run.report);
+            cut_map = cut_map.take().or(run.cut_map);
+            Ok(())
+        };
+        stack::denoise_slices(units.len(), 0..units.len(), &load, &working, &sub, &mut emit)?;
+    }
+    let reports = reports.into_iter().map(|r| r.ok_or_else(|| Error::Internal("a page was not denoised".into())));
+    Ok(FileRun { document: out, reports: reports.collect::<Result<_>>()?, cut_map })
+}
+
+fn channel_label(c: usize, n: usize) -> String {
+    if n > 1 {
+        format!("channel {} of {n}", c + 1)
+    } else {
+        String::new()
+    }
 }

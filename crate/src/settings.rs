@@ -156,6 +156,9 @@ pub struct PatchGraphSettings {
     pub tile_size: u32,
     /// How the graph across a group is weighted.
     pub group_graph: GroupGraph,
+    /// Stacks (pages of one size: z or time): slices on each side of a page whose patches join
+    /// its groups; 0 denoises every page alone. Single images are not affected.
+    pub neighbour_slices: u32,
 }
 
 impl Default for PatchGraphSettings {
@@ -170,6 +173,7 @@ impl Default for PatchGraphSettings {
             min_similarity: 0.0,
             tile_size: 64,
             group_graph: GroupGraph::NoiseTested,
+            neighbour_slices: 1,
         }
     }
 }
@@ -274,12 +278,13 @@ impl Settings {
         range("patch_graph.threshold", q.threshold, 0.0, 10.0)?;
         range("patch_graph.min_similarity", q.min_similarity, -1.0, 1.0)?;
         range("patch_graph.tile_size", f64::from(q.tile_size), 16.0, 4096.0)?;
+        range("patch_graph.neighbour_slices", f64::from(q.neighbour_slices), 0.0, 2.0)?;
         Ok(())
     }
 }
 
 /// Version 1 to 2: the noise model defaulted to Gaussian, the photon model had a gain of 1 and
-/// no read noise unless given, and no offset.
+/// no read noise unless given, and no offset; every page of a stack was denoised alone.
 fn upgrade_v1(v: &mut serde_json::Value) {
     use serde_json::{json, Value};
     let Value::Object(map) = v else { return };
@@ -292,8 +297,9 @@ fn upgrade_v1(v: &mut serde_json::Value) {
     map.insert("offset".into(), json!(0.0));
     if let Some(Value::Object(pg)) = map.get_mut("patch_graph") {
         pg.entry("group_graph").or_insert(json!("similarity"));
+        pg.entry("neighbour_slices").or_insert(json!(0));
     } else {
-        map.insert("patch_graph".into(), json!({"group_graph": "similarity"}));
+        map.insert("patch_graph".into(), json!({"group_graph": "similarity", "neighbour_slices": 0}));
     }
 }
 

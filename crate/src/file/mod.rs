@@ -271,6 +271,12 @@ impl Document {
     pub fn units(&self) -> usize {
         self.pages.len() * self.per_page()
     }
+    /// The images of each independent channel through the pages (z or time), in page order:
+    /// one list per channel (one list for pages whose channels are denoised together).
+    pub fn slice_series(&self) -> Vec<Vec<usize>> {
+        let per = self.per_page();
+        (0..per).map(|c| (0..self.pages.len()).map(|p| p * per + c).collect()).collect()
+    }
     /// Unit `k` as an image a method takes (a band alone, as grey).
     pub fn unit(&self, k: usize) -> Result<Image> {
         let (p, c) = (k / self.per_page(), k % self.per_page());

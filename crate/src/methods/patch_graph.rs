@@ -15,7 +15,7 @@ use super::MethodOutput;
 use crate::error::{Error, Result};
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
-use crate::patch::matching::{match_groups, patch_ssim, MatchParams};
+use crate::patch::matching::{match_groups, match_groups_across, patch_ssim, MatchParams};
 use crate::patch::transform::{axpy, dct2, dct_matrix, graph_fourier_basis, idct2};
 use crate::patch::Group;
 use crate::planes::Plane;
@@ -168,6 +168,10 @@ fn lf_distance(a: &[f32], b: &[f32], lf: &[usize]) -> f64 {
 /// stage 1 only, or testing the whole patch, kept less of the gain without sparing the stars.
 const FLAT_GROWTH: usize = 2;
 
+/// How far (pixels) from a reference's position its neighbouring slices are searched. Slices of a
+/// stack are in register, so a structure continues near where it is.
+pub const SLICE_SEARCH: usize = 6;
+
 /// How fast a noise-tested weight falls with the excess difference, in units of twice the noise.
 const TESTED_SCALE: f64 = 4.0;
 
@@ -216,6 +220,10 @@ pub struct Stage<'a> {
     /// coefficients, DC included (group graph).
     match_var: f64,
     lf_var: f64,
+    /// Neighbouring slices of a stack (each with the planes of `noisy`, and of `basic` in stage
+    /// 2), whose patches join the groups but are not written: see [`Stage::with_slices`].
+    context: Vec<&'a [Plane]>,
+    context_basic: Vec<&'a [Plane]>,
 }
 
 impl<'a> Stage<'a> {
@@ -276,7 +284,27 @@ impl<'a> Stage<'a> {
             noise,
             match_var,
             lf_var,
+            context: Vec::new(),
+            context_basic: Vec::new(),
         })
+    }
+
+    /// Adds neighbouring slices of a stack (the same rows and planes as this stage's; in stage 2
+    /// with their basic estimates too): their patches join the groups, matched within
+    /// [`SLICE_SEARCH`] pixels of the reference's position, and only the stage's own slice is
+    /// written. The result of a slice then depends on the slices around it, never the reverse.
+    pub fn with_slices(mut self, noisy: Vec<&'a [Plane]>, basic: Vec<&'a [Plane]>) -> Result<Self> {
+        let own = &self.noisy[0];
+        let fits = |set: &[Plane]| {
+            set.len() == self.noisy.len() && set.iter().all(|p| p.width == own.width && p.height == own.height)
+        };
+        let basic_ok = if self.basic.is_some() { basic.len() == noisy.len() } else { basic.is_empty() };
+        if noisy.len() > usize::from(u8::MAX) || !basic_ok || !noisy.iter().chain(&basic).all(|s| fits(s)) {
+            return Err(Error::Internal("the neighbouring slices do not line up with the stage's planes".into()));
+        }
+        self.context = noisy;
+        self.context_basic = basic;
+        Ok(self)
     }
 
     pub fn profile(&self) -> Profile {
@@ -288,6 +316,18 @@ impl<'a> Stage<'a> {
             self.prof.group2
         } else {
             self.prof.group1
+        }
+    }
+
+    /// The most candidates matching keeps: the group size, grown where the noise cannot tell
+    /// candidates apart ([`FLAT_GROWTH`]), by half again in a stack, whose neighbouring slices
+    /// offer more such candidates ([`Stage::with_slices`]).
+    fn match_cap(&self) -> usize {
+        let cap = self.group_size() * if self.prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 };
+        if self.context.is_empty() {
+            cap
+        } else {
+            cap + cap / 2
         }
     }
 
@@ -306,21 +346,24 @@ impl<'a> Stage<'a> {
             return Err(Error::Internal("a tile reaches outside its band's rows".into()));
         }
         let wy = y0 - self.y0;
-        let noisy: Vec<Plane> = self.noisy.iter().map(|p| crop(p, x0, wy, cw, ch)).collect();
-        let basic: Option<Vec<Plane>> = self.basic.map(|b| b.iter().map(|p| crop(p, x0, wy, cw, ch)).collect());
-        let guide = basic.as_ref().map_or(&noisy[0], |b| &b[0]);
+        let cut = |set: &[Plane]| -> Vec<Plane> { set.iter().map(|p| crop(p, x0, wy, cw, ch)).collect() };
+        // Per slice (the stage's own first, then its neighbours), the cropped planes.
+        let noisy: Vec<Vec<Plane>> = std::iter::once(self.noisy).chain(self.context.iter().copied()).map(cut).collect();
+        let basic: Option<Vec<Vec<Plane>>> =
+            self.basic.map(|b| std::iter::once(b).chain(self.context_basic.iter().copied()).map(cut).collect());
+        let guides: Vec<&Plane> = basic.as_ref().unwrap_or(&noisy).iter().map(|set| &set[0]).collect();
         let local: Vec<(usize, usize)> = refs.iter().map(|&(x, y)| (x - x0, y - y0)).collect();
         let mp = MatchParams {
             patch: k,
             search: s,
-            max_group: self.group_size()
-                * if self.prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 },
+            max_group: self.match_cap(),
             min_similarity: self.prof.min_similarity,
             range: self.range,
             noise_var: if basic.is_some() { 0.0 } else { self.match_var },
         };
-        let groups = match_groups(guide, &local, &mp, &SubProgress { parent: progress, start: 0.0, span: 0.5 })?;
-        let mut acc = Accumulator::new(x0, y0, cw, ch, noisy.len());
+        let sub = SubProgress { parent: progress, start: 0.0, span: 0.5 };
+        let groups = match_groups_across(guides[0], &guides[1..], SLICE_SEARCH, &local, &mp, &sub)?;
+        let mut acc = Accumulator::new(x0, y0, cw, ch, self.noisy.len());
         for (g, group) in groups.iter().enumerate() {
             if g % 64 == 0 {
                 check(progress)?;
@@ -331,13 +374,22 @@ impl<'a> Stage<'a> {
         Ok(acc)
     }
 
-    /// 2-D DCT of each patch at `positions` in one plane, patch i at [i k^2, (i+1) k^2).
-    fn patch_coeffs_of(&self, plane: &Plane, positions: &[(usize, usize)]) -> Vec<f32> {
+    /// 2-D DCT of patches `range` of a group in plane `ch` of their slices (`slices[s][ch]`),
+    /// patch i at [i k^2, (i+1) k^2).
+    fn patch_coeffs_of(
+        &self,
+        slices: &[Vec<Plane>],
+        ch: usize,
+        group: &Group,
+        range: std::ops::Range<usize>,
+    ) -> Vec<f32> {
         let k = self.prof.patch;
         let kk = k * k;
         let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
-        let mut out = vec![0.0f32; positions.len() * kk];
-        for (i, &(x, y)) in positions.iter().enumerate() {
+        let mut out = vec![0.0f32; range.len() * kk];
+        for (i, g) in range.enumerate() {
+            let (x, y) = group.positions[g];
+            let plane = &slices[group.slice(g)][ch];
             for r in 0..k {
                 buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
             }
@@ -349,32 +401,32 @@ impl<'a> Stage<'a> {
     /// How many of the group's patches (best first) to keep: the group size, and beyond it only
     /// candidates the noise cannot tell from the reference ([`FLAT_GROWTH`]). `plane` is the one
     /// the group graph is built from; candidates are transformed one at a time, only while they pass.
-    fn keep_count(&self, plane: &Plane, group: &Group, noisy: bool) -> usize {
+    fn keep_count(&self, slices: &[Vec<Plane>], group: &Group, noisy: bool) -> usize {
         let base = self.group_size();
         let n = group.len();
         if n <= base || self.prof.group_graph != GroupGraph::NoiseTested {
             return n.min(base);
         }
         let (_, expected) = tested_expectation(self.lf_var, self.lf.len(), noisy);
-        let reference = self.patch_coeffs_of(plane, &group.positions[..1]);
+        let reference = self.patch_coeffs_of(slices, 0, group, 0..1);
         (base..n)
-            .find(|&i| {
-                lf_distance(&reference, &self.patch_coeffs_of(plane, &group.positions[i..=i]), &self.lf) > expected
-            })
+            .find(|&i| lf_distance(&reference, &self.patch_coeffs_of(slices, 0, group, i..i + 1), &self.lf) > expected)
             .unwrap_or(n)
     }
 
-    fn filter_group(&self, group: &Group, noisy: &[Plane], basic: Option<&[Plane]>, acc: &mut Accumulator) {
+    /// `noisy` and `basic`: per slice (own first), the planes of the tile's crop.
+    fn filter_group(&self, group: &Group, noisy: &[Vec<Plane>], basic: Option<&[Vec<Plane>]>, acc: &mut Accumulator) {
         let k = self.prof.patch;
         let kk = k * k;
         let sigma2 = self.sigma * self.sigma;
         let n = match basic {
-            Some(b) => self.keep_count(&b[0], group, false),
-            None => self.keep_count(&noisy[0], group, true),
+            Some(b) => self.keep_count(b, group, false),
+            None => self.keep_count(noisy, group, true),
         };
-        let kept = &group.positions[..n];
-        let noisy_c: Vec<Vec<f32>> = noisy.iter().map(|p| self.patch_coeffs_of(p, kept)).collect();
-        let basic_c: Option<Vec<Vec<f32>>> = basic.map(|b| b.iter().map(|p| self.patch_coeffs_of(p, kept)).collect());
+        let channels = self.noisy.len();
+        let noisy_c: Vec<Vec<f32>> = (0..channels).map(|c| self.patch_coeffs_of(noisy, c, group, 0..n)).collect();
+        let basic_c: Option<Vec<Vec<f32>>> =
+            basic.map(|b| (0..channels).map(|c| self.patch_coeffs_of(b, c, group, 0..n)).collect());
         // The group graph comes from the cleanest luminance available.
         let graph_src = match &basic_c {
             Some(b) => &b[0],
@@ -406,9 +458,9 @@ impl<'a> Stage<'a> {
             }
             t
         };
-        let mut filtered: Vec<Vec<f32>> = Vec::with_capacity(noisy.len());
+        let mut filtered: Vec<Vec<f32>> = Vec::with_capacity(channels);
         let mut weight_den = 0.0f64;
-        for ch in 0..noisy.len() {
+        for ch in 0..channels {
             let mut t = across(&noisy_c[ch]);
             let cn = &self.noise[ch];
             match &basic_c {
@@ -443,8 +495,12 @@ impl<'a> Stage<'a> {
         let weight = (1.0 / (sigma2 * weight_den.max(1e-12))) as f32;
         // Inverse across the group (C_i = sum_j u_ij T_j), the inverse 2-D DCT, then aggregation.
         let (mut coeff, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
-        let mut patch = vec![vec![0.0f32; kk]; noisy.len()];
+        let mut patch = vec![vec![0.0f32; kk]; channels];
         for (i, &(x, y)) in group.positions.iter().take(n).enumerate() {
+            // Patches of neighbouring slices helped filter; only the own slice is written.
+            if group.slice(i) != 0 {
+                continue;
+            }
             for (ch, t) in filtered.iter().enumerate() {
                 coeff.iter_mut().for_each(|v| *v = 0.0);
                 for j in 0..n {
@@ -507,7 +563,7 @@ impl<'a> Stage<'a> {
 
 /// Runs one stage over the whole image band by band, assembling rows as soon as no later band
 /// can add to them, so only a few bands' accumulators exist at once.
-fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
+pub fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
     let plan = bands::plan(stage.noisy[0].width, stage.full_height, &stage.prof, bands::NATIVE_BAND_ROWS);
     let mut assembler = Assembler::new(&plan, stage.noisy);
     for (i, band) in plan.iter().enumerate() {
@@ -574,8 +630,7 @@ pub fn group_at(
     let mut g = groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))?;
     // The patches stage 1 keeps, as a run decides (white noise of `sigma` assumed here).
     let stage = Stage::new(std::slice::from_ref(luma), None, 0, luma.height, sigma, max_value, s, None)?;
-    let n = stage.keep_count(luma, &g, true);
-    g.positions.truncate(n);
-    g.similarity.truncate(n);
+    let n = stage.keep_count(&[vec![luma.clone()]], &g, true);
+    g.truncate(n);
     Ok(g)
 }

@@ -6,11 +6,14 @@ pub mod matching;
 pub mod transform;
 
 /// A group of similar patches: top-left corners (in the coordinates of the plane they were matched
-/// in) and their SSIM to the reference, which is always first.
+/// in) and their SSIM to the reference, which is always first. `slices` says which plane each
+/// patch lies in: 0 the reference's own, i the i-th neighbouring slice of a stack (empty when
+/// matching looked at one plane only, i.e. all 0).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Group {
     pub positions: Vec<(usize, usize)>,
     pub similarity: Vec<f32>,
+    pub slices: Vec<u8>,
 }
 
 impl Group {
@@ -19,5 +22,15 @@ impl Group {
     }
     pub fn is_empty(&self) -> bool {
         self.positions.is_empty()
+    }
+    /// The plane patch `i` lies in (0: the reference's own).
+    pub fn slice(&self, i: usize) -> usize {
+        self.slices.get(i).map_or(0, |&s| usize::from(s))
+    }
+    /// Keeps the first `n` patches.
+    pub fn truncate(&mut self, n: usize) {
+        self.positions.truncate(n);
+        self.similarity.truncate(n);
+        self.slices.truncate(n);
     }
 }

@@ -112,6 +112,10 @@ pub struct DenoiseArgs {
     /// Photon noise: the read-noise std in grey levels, or "auto".
     #[arg(long)]
     pub read_noise: Option<String>,
+    /// Stacks (patch-graph): slices on each side of a page whose patches join its groups
+    /// (0 to 2; default 1); 0 denoises every page alone.
+    #[arg(long)]
+    pub neighbour_slices: Option<u32>,
     /// Settings JSON; flags given on the command line override it.
     #[arg(long)]
     pub settings: Option<PathBuf>,
@@ -188,6 +192,9 @@ fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
             *field = auto_or_number(name, text)?;
         }
     }
+    if let Some(n) = a.neighbour_slices {
+        s.patch_graph.neighbour_slices = n;
+    }
     s.validate().map_err(|e| Failure::user(e.to_string()))?;
     Ok(s)
 }
@@ -239,7 +246,7 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
             .map(|(k, r)| {
                 json!({"unit": doc.unit_label(k), "noise_model": r.noise.model, "sigma": data_sigma(k, r),
                                   "stabilised": r.stabilised, "residual": r.residual,
-                                  "error_estimate": r.error_estimate})
+                                  "error_estimate": r.error_estimate, "slices_joined": r.slices_joined})
             })
             .collect();
         let first = doc.unit(0).map_err(|e| Failure::about(&a.input, e))?;
@@ -286,6 +293,14 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
                 summary.sample.describe()
             );
         }
+        let joined = run.reports.iter().filter(|r| r.slices_joined.is_some_and(|n| n > 0)).count();
+        if run.reports.iter().any(|r| r.slices_joined.is_some()) {
+            outln!(
+                "  as a volume: {joined} of {} images took patches from the slices around them too (patch_graph.neighbour_slices {}; pages that do not continue each other are denoised alone)",
+                run.reports.len(),
+                settings.patch_graph.neighbour_slices
+            );
+        }
         outln!("  noise: {} ({})", r.noise.model, r.noise.sentence);
         if let Some(f) = &r.noise.fallback {
             outln!("  note: {f}");
@@ -293,7 +308,8 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
         for (k, r) in run.reports.iter().enumerate() {
             let label = doc.unit_label(k);
             if !label.is_empty() {
-                outln!("  {label}: sigma {:.4}", data_sigma(k, r));
+                let joined = r.slices_joined.map_or(String::new(), |n| format!(", {n} neighbouring slice(s) joined"));
+                outln!("  {label}: sigma {:.4}{joined}", data_sigma(k, r));
             }
             for (c, s) in r.residual.iter().enumerate() {
                 outln!(
