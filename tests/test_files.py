@@ -62,6 +62,39 @@ def test_tiff_zstack_keeps_every_page_and_its_tags(tmp_path, patchgraph):
         assert mse(result[k], clean[k]) < 0.5 * mse(noisy[k], clean[k]), f"page {k + 1}"
 
 
+def test_a_zstack_as_a_volume_beats_its_slices_alone_and_unrelated_pages_stay_alone(tmp_path, patchgraph):
+    # Our own synthetic z-stack (tests/bench/devset.py: cells, granules and filaments through z),
+    # 16-bit photon counts with read noise. Invariant of averaging: patches of the neighbouring
+    # slices carry independent noise, so the volume run is closer to the truth than each slice
+    # alone (measured on this stack: +0.16 to +0.24 dB per page, +0.21 dB overall; checked: a
+    # gain on every inner page, and at least 0.15 dB on the whole stack). Pages that are unrelated images (the
+    # development set's photographs) lend nothing: the result equals each page alone.
+    import devset
+    rng = np.random.default_rng(7)
+    lam = 60 * devset.cell_stack(n=128, depth=6)
+    clean = 100 + 4 * lam
+    noisy = np.clip(np.rint(100 + 4 * rng.poisson(lam) + rng.normal(0, 6, lam.shape)), 0, 65535).astype(np.uint16)
+    src = tmp_path / "zstack.tif"
+    tifffile.imwrite(src, noisy, photometric="minisblack", metadata=None)
+    alone_settings = tmp_path / "alone.json"
+    alone_settings.write_text('{"patch_graph": {"neighbour_slices": 0}}')
+    vol = patchgraph("denoise", src, "-o", tmp_path / "vol.tif")
+    assert all(u["slices_joined"] >= 1 for u in vol["units"]), vol["units"]
+    patchgraph("denoise", src, "-o", tmp_path / "alone.tif", "--settings", alone_settings)
+    a, b = tifffile.imread(tmp_path / "vol.tif"), tifffile.imread(tmp_path / "alone.tif")
+    per_page = [mse(a[k], clean[k]) < mse(b[k], clean[k]) for k in range(1, 5)]
+    assert all(per_page) and mse(a, clean) < mse(b, clean) * 10 ** -0.015, (per_page, mse(a, clean), mse(b, clean))
+    g = devset.grey_images()
+    unrelated = np.stack([g["camera256"], g["astronaut256"], g["coffee256"]])
+    noisy_u = np.clip(np.rint(unrelated + rng.normal(0, 20, unrelated.shape)), 0, 255).astype(np.uint8)
+    src_u = tmp_path / "pages.tif"
+    tifffile.imwrite(src_u, noisy_u, photometric="minisblack", metadata=None)
+    r = patchgraph("denoise", src_u, "-o", tmp_path / "u_vol.tif")
+    assert all(u["slices_joined"] == 0 for u in r["units"]), r["units"]
+    patchgraph("denoise", src_u, "-o", tmp_path / "u_alone.tif", "--settings", alone_settings)
+    assert np.array_equal(tifffile.imread(tmp_path / "u_vol.tif"), tifffile.imread(tmp_path / "u_alone.tif"))
+
+
 @pytest.mark.parametrize("dtype", [np.float32, np.float64, np.int16, np.int32])
 def test_float_and_signed_tiff_keep_type_sign_and_range(tmp_path, patchgraph, dtype):
     # Background-subtracted data: values below zero must survive, floats unclipped.

@@ -80,6 +80,7 @@ function describe(info, fileInfo = info) {
 function setupSlices(fileInfo) {
   const many = fileInfo.units > 1;
   $('slice-bar').hidden = !many;
+  document.body.toggleAttribute('data-stack', fileInfo.pages > 1);
   $('slice').max = String(fileInfo.units);
   $('slice').value = '1';
   $('slice-label').textContent = many ? fileInfo.unitLabels[0] : '';

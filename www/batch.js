@@ -42,9 +42,9 @@ export async function runBatch(files, pane, download) {
       const bytes = new Uint8Array(await f.arrayBuffer());
       const onProgress = (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; };
       const started = performance.now();
-      const { units } = await call('open', { bytes: bytes.slice() });
+      const { units, pages } = await call('open', { bytes: bytes.slice() });
       // As in a pane: every page and channel, the file saved whole in its own format.
-      current = runWholeFile(bytes, units, settings, pane.settings.method, onProgress);
+      current = runWholeFile(bytes, units, settings, pane.settings.method, onProgress, undefined, undefined, pages);
       const r = await current.promise;
       const stem = f.name.replace(/\.[^.]+$/, '');
       let name = `${stem}-denoised.${r.extension}`;

@@ -1,6 +1,6 @@
 // One pane: a setting of its own, its run (progress, stop), its views and its metrics.
 import { call, Stopped } from './tasks.js';
-import { runImage, runWholeFile } from './wholefile.js';
+import { runImage, runWholeFile, asVolume } from './wholefile.js';
 import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
@@ -23,6 +23,8 @@ const fields = {
   },
   'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; },
     help: 'How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.' },
+  'pg-slices': { get: (s) => s.patch_graph.neighbour_slices, set: (s, v) => { s.patch_graph.neighbour_slices = +v; },
+    help: 'Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.' },
   'px-graph': { get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
     help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
   'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
@@ -44,6 +46,7 @@ function addHelp(form) {
     const dt = document.createElement('dt');
     dt.textContent = label.firstChild.textContent.trim();
     dt.className = label.closest('.only-patch-graph') ? 'only-patch-graph' : label.closest('.only-pixel-graph') ? 'only-pixel-graph' : '';
+    if (label.classList.contains('only-stack')) dt.classList.add('only-stack');
     const dd = document.createElement('dd');
     dd.textContent = fld.help;
     dd.className = dt.className;
@@ -238,7 +241,9 @@ export class Pane {
     const made = structuredClone(this.settings);
     const { file, unit } = src;
     const estimate = this.app.estimating();
-    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show, estimate);
+    const { pages, units } = src.fileInfo;
+    const stack = asVolume(settings, pages) ? { file: src.file.slice(), unit, pages, units } : null;
+    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show, estimate, stack);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
@@ -380,6 +385,10 @@ export class Pane {
       ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`, 'higher is better; +1 dB is 21% less squared error'],
       ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4), 'structural similarity; 1 is identical'],
     ];
+    const joined = this.result.report.slices_joined;
+    if (joined !== undefined && joined !== null) {
+      rows.splice(2, 0, ['Slices joined', String(joined), 'neighbouring slices of the stack that lent this image their patches (0: it was denoised alone)']);
+    }
     for (const [k, v, help] of rows) {
       const dt = document.createElement('dt'); dt.textContent = k;
       const dd = document.createElement('dd'); dd.textContent = v;
@@ -564,7 +573,7 @@ export class Pane {
         r.settings = made;
         // Images not on screen keep only what saving needs.
         this.results.set(k, k === src.unit ? r : { file: r.file, settings: r.settings, report: r.report });
-      });
+      }, src.fileInfo.pages);
     try {
       const out = await this.run.promise;
       this.app.download(`${base}-denoised-${this.name}.${out.extension}`, new Blob([out.file]));

@@ -5,7 +5,8 @@ use crate::error::{Error, Result};
 use crate::error_estimate::ErrorEstimate;
 use crate::file::samples::ValueMap;
 use crate::file::Document;
-use crate::pipeline::{self, RunReport};
+use crate::file::{self, DecodeLimits};
+use crate::pipeline::{self, RunOutput, RunReport};
 use crate::planes::Plane;
 use crate::progress::{Labelled, Progress};
 use crate::settings::{AutoOr, Settings};
@@ -98,18 +99,9 @@ pub fn denoise_stack(
         let base = doc.unit_map(units[0]);
         let working = in_working_units(settings, base);
         let load = |z: usize| doc.unit_in(units[z], base);
-        let mut emit = |z: usize, mut run: crate::pipeline::RunOutput| -> Result<()> {
+        let mut emit = |z: usize, mut run: RunOutput| -> Result<()> {
             let k = units[z];
-            let own = doc.unit_map(k);
-            if own != base {
-                for p in &mut run.image.channels {
-                    p.data.iter_mut().for_each(|v| *v = own.to_working(base.to_stored(*v)));
-                }
-            }
-            if estimate_error {
-                let top = f64::from(run.image.max_value());
-                run.report.error_estimate = Some(ErrorEstimate::none(NO_ESTIMATE_FOR_STACKS.into(), top));
-            }
+            in_own_scale(&mut run, base, doc.unit_map(k), estimate_error);
             out.set_unit(k, run.image)?;
             reports[k] = Some(run.report);
             cut_map = cut_map.take().or(run.cut_map);
@@ -119,6 +111,54 @@ pub fn denoise_stack(
     }
     let reports = reports.into_iter().map(|r| r.ok_or_else(|| Error::Internal("a page was not denoised".into())));
     Ok(FileRun { document: out, reports: reports.collect::<Result<_>>()?, cut_map })
+}
+
+/// A stack run's result from the scale of its channel's first page to its own; with
+/// `estimate_error`, the report says why there is no estimate.
+fn in_own_scale(run: &mut RunOutput, base: ValueMap, own: ValueMap, estimate_error: bool) {
+    if own != base {
+        for p in &mut run.image.channels {
+            p.data.iter_mut().for_each(|v| *v = own.to_working(base.to_stored(*v)));
+        }
+    }
+    if estimate_error {
+        let top = f64::from(run.image.max_value());
+        run.report.error_estimate = Some(ErrorEstimate::none(NO_ESTIMATE_FOR_STACKS.into(), top));
+    }
+}
+
+/// Image `k` of a stack file of `pages` pages and `units` images, exactly as [`denoise_stack`]
+/// makes it, decoding only the pages it reads (its own and those around it): one image per page
+/// worker, in bounded memory. Returns the image alone, as a one-image document, and its run.
+pub fn denoise_stack_unit(
+    bytes: &[u8],
+    limits: &DecodeLimits,
+    k: usize,
+    pages: usize,
+    units: usize,
+    settings: &Settings,
+    estimate_error: bool,
+    progress: &dyn Progress,
+) -> Result<(Document, RunOutput)> {
+    if pages == 0 || units % pages != 0 || k >= units {
+        return Err(Error::BadSettings(format!("there is no image {} in a file of {units} images", k + 1)));
+    }
+    let per = units / pages;
+    let series: Vec<usize> = (0..pages).map(|p| p * per + k % per).collect();
+    let base = file::decode_unit(bytes, limits, series[0])?.unit_map(0);
+    let load = |z: usize| file::decode_unit(bytes, limits, series[z])?.unit_in(0, base);
+    let mut made = None;
+    let mut emit = |_: usize, run: RunOutput| -> Result<()> {
+        made = Some(run);
+        Ok(())
+    };
+    let z = k / per;
+    stack::denoise_slices(pages, z..z + 1, &load, &in_working_units(settings, base), progress, &mut emit)?;
+    let mut run = made.ok_or_else(|| Error::Internal("the slice was not denoised".into()))?;
+    let mut one = file::decode_unit(bytes, limits, k)?;
+    in_own_scale(&mut run, base, one.unit_map(0), estimate_error);
+    one.set_unit(0, run.image.clone())?;
+    Ok((one, run))
 }
 
 fn channel_label(c: usize, n: usize) -> String {

@@ -138,6 +138,7 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     let obj = Object::new();
     let summary = doc.summary();
     set(&obj, "units", &num(summary.units))?;
+    set(&obj, "pages", &num(summary.pages))?;
     let labels: Array = (0..summary.units).map(|k| JsValue::from_str(&doc.unit_label(k))).collect();
     set(&obj, "unitLabels", &labels.into())?;
     set(&obj, "format", &JsValue::from_str(doc.format.info().name))?;
@@ -246,6 +247,35 @@ pub fn denoise(
         pipeline::denoise(&img, &settings, &progress)
     };
     run_result(input, max_megapixels, &settings, &img, &run.map_err(js_err)?)
+}
+
+/// Image `k` of a stack denoised as a volume (`patch_graph.neighbour_slices`), one worker, only
+/// the pages it reads decoded: what [`denoise`] returns, for the image alone. `pages` and `units`
+/// are the file's, as [`open`] gave them.
+#[wasm_bindgen(js_name = denoiseSlice)]
+#[allow(clippy::too_many_arguments)]
+pub fn denoise_slice(
+    input: &[u8],
+    k: u32,
+    pages: u32,
+    units: u32,
+    settings_json: &str,
+    max_megapixels: u32,
+    on_progress: &Function,
+    estimate: bool,
+) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
+    let progress = JsProgress(on_progress);
+    let (k, pages, units) = (k as usize, pages as usize, units as usize);
+    let original = file::decode_unit(input, &limits, k).map_err(js_err)?;
+    let unit_bytes = file::encode(&original, Format::Tiff, None).map_err(js_err)?;
+    drop(original);
+    let (_, run) =
+        crate::run_file::denoise_stack_unit(input, &limits, k, pages, units, &settings, estimate, &progress)
+            .map_err(js_err)?;
+    let img = decode(&unit_bytes, max_megapixels)?;
+    run_result(&unit_bytes, max_megapixels, &settings, &img, &run)
 }
 
 /// First step of a patch-graph run split across workers: the method's planes (an array of

@@ -131,3 +131,27 @@ fn a_document_lists_each_channel_through_its_pages() {
     doc.pages.push(doc.pages[0].clone());
     assert_eq!(doc.slice_series(), vec![vec![0, 1, 2]]);
 }
+
+#[test]
+fn a_page_worker_makes_each_image_of_a_stack_file_as_the_command_line_does() {
+    // Invariant: one image of a TIFF stack made alone (decoding only its pages) equals the
+    // same image of the whole file's run, so the page saves what the command line writes.
+    let (_, images) = stack(4, 20.0, 4);
+    let mut doc = patchgraph::file::document_of(images[0].clone(), Format::Tiff);
+    for img in &images[1..] {
+        let mut page = doc.pages[0].clone();
+        page.image = img.clone();
+        doc.pages.push(page);
+    }
+    let bytes = patchgraph::file::encode(&doc, Format::Tiff, None).expect("stack encodes");
+    let limits = patchgraph::file::DecodeLimits::default();
+    let read = patchgraph::file::decode(&bytes, &limits).expect("stack decodes");
+    let s = Settings::default();
+    let whole = patchgraph::run_file::denoise_file(&read, &s, false, &NoProgress).expect("stack denoises");
+    for k in [0, 1, 3] {
+        let (one, run) = patchgraph::run_file::denoise_stack_unit(&bytes, &limits, k, 4, 4, &s, false, &NoProgress)
+            .expect("one image denoises");
+        assert_eq!(one.unit(0).expect("unit").channels, whole.document.unit(k).expect("unit").channels, "image {k}");
+        assert_eq!(run.report.slices_joined, whole.reports[k].slices_joined);
+    }
+}

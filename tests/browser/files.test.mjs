@@ -7,6 +7,7 @@ import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
 import { start, openReady, ROOT, OUT } from './harness.mjs';
 
+const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 const PY = process.env.PATCHGRAPH_PYTHON || join(ROOT, '.venv', 'bin', 'python');
 const py = (code) => execFileSync(PY, ['-c', code], { encoding: 'utf8' }).trim();
 let h; let page; let consoleErrors;
@@ -46,9 +47,14 @@ test('a TIFF z-stack: one slice control for all settings, every page saved', asy
   assert.equal(await page.locator('#slice-bar').isVisible(), true);
   assert.match(await page.locator('#slice-label').textContent(), /page 1 of 3/);
   assert.match(await page.locator('#source-info').textContent(), /16-bit unsigned TIFF/);
+  // The stack's settings show (and only for stacks): neighbour slices, 1 by default.
+  assert.equal(await pane().locator('input[name=pg-slices]').inputValue(), '1');
   await pane().locator('.run').click();
   await pane().locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
   assert.match(await pane().locator('.stage').textContent(), /done/);
+  // Denoised as a slice of the volume: the page says how many slices lent their patches.
+  const metrics = await pane().locator('.metrics').textContent();
+  assert.match(metrics, /Slices joined1/);
   // Another slice: the pane has no result for it yet, and says nothing stale.
   await page.locator('#slice').fill('2');
   await page.waitForFunction(() => /^page 2 of 3$/.test(document.getElementById('slice-label').textContent));
@@ -71,6 +77,17 @@ for k in range(3):
     assert a < 0.3 * b, (k, a, b)
 print('ok')`);
   assert.equal(verdict, 'ok');
+  // The command line with the same (default) settings writes the same samples: the page runs
+  // each slice alone in a worker, the command line the whole stack at once.
+  execFileSync(CLI, ['denoise', join(OUT, 'stack-in.tif'), '-o', join(OUT, 'stack-cli.tif')]);
+  assert.equal(py(`
+import numpy as np, tifffile
+a, b = tifffile.imread('${path}'), tifffile.imread('${OUT}/stack-cli.tif')
+print('same' if a.shape == b.shape and np.array_equal(a, b) else f'differ at {int(np.sum(a != b))} samples')`), 'same');
+  // A single image shows no stack settings.
+  await page.setInputFiles('#file', join(ROOT, 'sample-images', 'cells-noisy.png'));
+  await page.waitForFunction(() => !document.body.hasAttribute('data-stack'));
+  assert.equal(await pane().locator('input[name=pg-slices]').isVisible(), false);
 });
 
 test('a float FITS cube with blank pixels saves as FITS, blanks where they were', async () => {
