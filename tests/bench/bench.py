@@ -25,6 +25,7 @@ from skimage.restoration import denoise_nl_means, denoise_tv_chambolle, estimate
 
 import devset
 import realnoise
+import stacks
 
 cv2.setNumThreads(1)
 SIGMAS = (10, 25, 50)
@@ -279,6 +280,7 @@ def main():
     colour = [] if quick else colour_rows(exe, work)
     real_lines, real_summary, _, _ = realnoise.table(exe, os.path.join(work, "real"))
     poisson = poisson_rows(exe, work)
+    stack_lines, stack_summary = stacks.table(exe, os.path.join(work, "stacks"))
     big12 = ""
     if not quick:
         # A 12-megapixel colour photo (4000 x 3000, astronaut tiled), sigma 15: time and peak memory.
@@ -335,6 +337,14 @@ def main():
         *real_lines,
         "",
         "; ".join(real_summary) + ".",
+        "",
+        "## Stacks: slices alone against the volume, PSNR (dB)",
+        "",
+        stacks.__doc__.strip().replace("\n", " "),
+        "",
+        *stack_lines,
+        "",
+        stack_summary,
         "",
         "## Poisson noise, peak 10: PSNR (dB) on the photon scale",
         "",
