@@ -1,7 +1,7 @@
 // A whole file through runs: each image of it (a page, or one channel of a page) denoised on its
 // own in the workers, then the file put back together in its own format, with every page,
 // channel and its metadata. Used by a pane's "Save result" and by the batch.
-import { task, call, Stopped } from './tasks.js';
+import { task, call, poolSize, Stopped } from './tasks.js';
 import { splitRun } from './stitch.js';
 
 // Whether a file of `pages` pages is denoised as a volume under these settings (JSON): each
@@ -14,17 +14,83 @@ export function asVolume(settings, pages) {
 // One image: patch-graph runs split into bands across the workers; pixel-graph runs take one.
 // With `estimate`, a pixel-graph run makes its error estimate's pass before it returns; a
 // patch-graph run keeps its planes (`methodPlanes`) for the pass, which `splitEstimate` makes.
-// `stack` ({file, unit, pages, units}) runs image `unit` of a stack as a slice of its volume,
-// in one worker that decodes only the pages it reads.
+// `stack` ({file, unit, pages, units}) runs image `unit` of a stack as a slice of its volume.
 export function runImage(bytes, settings, method, onProgress, estimate = false, stack = null) {
-  if (stack) return task('denoiseSlice', { bytes: stack.file, ...stack, settings, estimate }, onProgress);
+  if (stack) {
+    const s = runStack(stack.file, [stack.unit], stack.pages, stack.units, settings, onProgress, estimate);
+    return { promise: s.promise.then((m) => m.get(stack.unit)), stop: s.stop };
+  }
   return method === 'patch-graph' ? splitRun(bytes, settings, onProgress, estimate) : task('denoise', { bytes, settings, estimate }, onProgress);
 }
 
+// Images `wanted` (in order) of a stack as a volume, split into jobs for any worker: the first
+// stage of every image they read (each made once, only the pages it reads decoded), then each
+// image's second stage from the first stages around it. First stages are made just ahead of the
+// images that need them and let go after, so the page holds a few images' planes, whatever the
+// stack's depth. Returns {promise, stop}; the promise gives a Map from image to its result.
+export function runStack(file, wanted, pages, units, settings, onProgress, estimate = false, keep = () => {}) {
+  const running = new Set();
+  let stopped = false;
+  const done = new Map();
+  let jobs = 0;
+  const tell = (id, f, s) => {
+    done.set(id, f);
+    let sum = 0;
+    for (const v of done.values()) sum += v;
+    onProgress(Math.min(1, sum / Math.max(jobs, 1)), s);
+  };
+  const start = (kind, payload, id) => {
+    if (stopped) return Promise.reject(new Stopped('stopped'));
+    jobs += 1;
+    const j = task(kind, { bytes: file.slice(), pages, units, settings, ...payload }, (f, s) => tell(id, f, s));
+    running.add(j);
+    return j.promise.finally(() => { running.delete(j); tell(id, 1, 'working through the slices'); });
+  };
+  const promise = (async () => {
+    const around = new Map();
+    for (const k of wanted) around.set(k, (await call('stackAround', { unit: k, pages, units, settings })).units);
+    const users = new Map();
+    for (const list of around.values()) for (const j of list) users.set(j, (users.get(j) || 0) + 1);
+    const firsts = new Map();
+    const first = (j) => {
+      if (!firsts.has(j)) firsts.set(j, start('sliceFirst', { unit: j }, `first ${j}`));
+      return firsts.get(j);
+    };
+    const second = async (k) => {
+      const basics = [];
+      for (const j of around.get(k)) basics.push((await first(j)).planes.map((p) => p.slice()));
+      const r = await start('sliceSecond', { unit: k, basics, estimate }, `second ${k}`);
+      for (const j of around.get(k)) {
+        users.set(j, users.get(j) - 1);
+        if (!users.get(j)) firsts.delete(j);
+      }
+      keep(k, r);
+      return [k, r];
+    };
+    const results = new Map();
+    const inflight = [];
+    try {
+      for (let i = 0; i < wanted.length; i += 1) {
+        // The first stages of the next few images start now, so workers never wait.
+        for (const k of wanted.slice(i, i + poolSize)) around.get(k).forEach(first);
+        inflight.push(second(wanted[i]));
+        if (inflight.length >= poolSize) { const [k, r] = await inflight.shift(); results.set(k, r); }
+      }
+      for (const p of inflight) { const [k, r] = await p; results.set(k, r); }
+    } catch (e) {
+      stopped = true;
+      for (const j of running) j.stop();
+      await Promise.allSettled([...inflight, ...firsts.values()]);
+      throw e;
+    }
+    return results;
+  })();
+  return { promise, stop: () => { stopped = true; for (const j of running) j.stop(); } };
+}
+
 // Returns {promise, stop}; the promise gives {file, extension, reports}. `done(k)` may give a
-// result already made for image k with these settings; `keep(k, r)` sees each new one. The
-// slices of a volume run side by side, one worker each; other images one after another, each
-// across all workers.
+// result already made for image k with these settings; `keep(k, r)` sees each new one. A
+// volume's images go through `runStack`; other images one after another, each across all workers.
 export function runWholeFile(file, units, settings, method, onProgress, done = () => null, keep = () => {}, pages = 1) {
   const running = new Set();
   let stopped = false;
@@ -38,14 +104,9 @@ export function runWholeFile(file, units, settings, method, onProgress, done = (
     const have = done(k);
     if (have) { fractions[k] = 1; return have; }
     if (stopped) throw new Stopped('stopped');
-    let job;
-    if (volume) {
-      job = runImage(null, settings, method, (f, s) => tell(k, f, s), false, { file: file.slice(), unit: k, pages, units });
-    } else {
-      const bytes = units > 1 ? (await call('unitFile', { bytes: file.slice(), unit: k })).file : file.slice();
-      if (stopped) throw new Stopped('stopped');
-      job = runImage(bytes, settings, method, (f, s) => tell(k, f, s));
-    }
+    const bytes = units > 1 ? (await call('unitFile', { bytes: file.slice(), unit: k })).file : file.slice();
+    if (stopped) throw new Stopped('stopped');
+    const job = runImage(bytes, settings, method, (f, s) => tell(k, f, s));
     running.add(job);
     try {
       const r = await job.promise;
@@ -59,16 +120,16 @@ export function runWholeFile(file, units, settings, method, onProgress, done = (
   const promise = (async () => {
     const results = [];
     if (volume) {
-      // Every slice queued at once: the pool runs as many as it has workers.
-      const all = Array.from({ length: units }, (_, k) => one(k));
-      try {
-        for (const p of all) results.push(await p);
-      } catch (e) {
-        stopped = true;
-        for (const j of running) j.stop();
-        await Promise.allSettled(all);
-        throw e;
-      }
+      const todo = [];
+      for (let k = 0; k < units; k += 1) if (!done(k)) todo.push(k);
+      const job = runStack(file, todo, pages, units, settings, (f, s) => onProgress(f, s), false, (k, r) => {
+        r.report = typeof r.report === 'string' ? JSON.parse(r.report) : r.report;
+        keep(k, r);
+      });
+      running.add(job);
+      const made = await job.promise;
+      running.delete(job);
+      for (let k = 0; k < units; k += 1) results.push(done(k) || made.get(k));
     } else {
       for (let k = 0; k < units; k += 1) results.push(await one(k));
     }

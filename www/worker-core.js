@@ -28,8 +28,10 @@ export function installWorker(pg, ready, build) {
         case 'check': r = pg.checkSettings(m.json); break;
         case 'open': r = pg.open(m.bytes, MAX_MEGAPIXELS); break;
         case 'denoise': r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, progress, Boolean(m.estimate)); break;
-        case 'denoiseSlice':
-          r = pg.denoiseSlice(m.bytes, m.unit, m.pages, m.units, m.settings, MAX_MEGAPIXELS, progress, Boolean(m.estimate));
+        case 'stackAround': r = { units: Array.from(pg.stackAround(m.unit, m.pages, m.units, m.settings)) }; break;
+        case 'sliceFirst': r = pg.sliceFirstStage(m.bytes, m.unit, m.pages, m.units, m.settings, MAX_MEGAPIXELS, progress); break;
+        case 'sliceSecond':
+          r = pg.sliceSecondStage(m.bytes, m.unit, m.pages, m.units, m.settings, m.basics, MAX_MEGAPIXELS, progress, Boolean(m.estimate));
           break;
         case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, m.bandRows, Boolean(m.probe)); break;
         case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, MAX_MEGAPIXELS) }; break;

@@ -7,7 +7,7 @@ use crate::file::samples::ValueMap;
 use crate::file::Document;
 use crate::file::{self, DecodeLimits};
 use crate::pipeline::{self, RunOutput, RunReport};
-use crate::planes::Plane;
+use crate::planes::{Image, Plane};
 use crate::progress::{Labelled, Progress};
 use crate::settings::{AutoOr, Settings};
 use crate::stack;
@@ -127,38 +127,79 @@ fn in_own_scale(run: &mut RunOutput, base: ValueMap, own: ValueMap, estimate_err
     }
 }
 
-/// Image `k` of a stack file of `pages` pages and `units` images, exactly as [`denoise_stack`]
-/// makes it, decoding only the pages it reads (its own and those around it): one image per page
-/// worker, in bounded memory. Returns the image alone, as a one-image document, and its run.
-pub fn denoise_stack_unit(
-    bytes: &[u8],
-    limits: &DecodeLimits,
-    k: usize,
-    pages: usize,
-    units: usize,
-    settings: &Settings,
-    estimate_error: bool,
-    progress: &dyn Progress,
-) -> Result<(Document, RunOutput)> {
-    if pages == 0 || units % pages != 0 || k >= units {
-        return Err(Error::BadSettings(format!("there is no image {} in a file of {units} images", k + 1)));
+/// Image `image` of a stack file of `pages` pages and `units` images (as the file's summary
+/// gives them), worked on alone: a page worker's jobs, decoding only the pages they read.
+#[derive(Clone, Copy)]
+pub struct StackImage<'a> {
+    pub bytes: &'a [u8],
+    pub limits: DecodeLimits,
+    pub image: usize,
+    pub pages: usize,
+    pub units: usize,
+}
+
+/// Where a stack image lies: its channel's images through the pages, its slice, and the value
+/// scale they are read in (the channel's first page's).
+struct Place {
+    series: Vec<usize>,
+    z: usize,
+    base: ValueMap,
+}
+
+impl StackImage<'_> {
+    /// Images per page, checking the image is in the file.
+    fn per_page(&self) -> Result<usize> {
+        let (k, pages, units) = (self.image, self.pages, self.units);
+        if pages == 0 || !units.is_multiple_of(pages) || k >= units {
+            return Err(Error::BadSettings(format!("there is no image {} in a file of {units} images", k + 1)));
+        }
+        Ok(units / pages)
     }
-    let per = units / pages;
-    let series: Vec<usize> = (0..pages).map(|p| p * per + k % per).collect();
-    let base = file::decode_unit(bytes, limits, series[0])?.unit_map(0);
-    let load = |z: usize| file::decode_unit(bytes, limits, series[z])?.unit_in(0, base);
-    let mut made = None;
-    let mut emit = |_: usize, run: RunOutput| -> Result<()> {
-        made = Some(run);
-        Ok(())
-    };
-    let z = k / per;
-    stack::denoise_slices(pages, z..z + 1, &load, &in_working_units(settings, base), progress, &mut emit)?;
-    let mut run = made.ok_or_else(|| Error::Internal("the slice was not denoised".into()))?;
-    let mut one = file::decode_unit(bytes, limits, k)?;
-    in_own_scale(&mut run, base, one.unit_map(0), estimate_error);
-    one.set_unit(0, run.image.clone())?;
-    Ok((one, run))
+
+    fn place(&self) -> Result<Place> {
+        let per = self.per_page()?;
+        let series: Vec<usize> = (0..self.pages).map(|p| p * per + self.image % per).collect();
+        let base = file::decode_unit(self.bytes, &self.limits, series[0])?.unit_map(0);
+        Ok(Place { series, z: self.image / per, base })
+    }
+
+    /// Slice `z` of its channel decoded alone, in the channel's value scale.
+    fn load(&self, place: &Place, z: usize) -> Result<Image> {
+        let k = *place.series.get(z).ok_or_else(|| Error::Internal("no such slice".into()))?;
+        file::decode_unit(self.bytes, &self.limits, k)?.unit_in(0, place.base)
+    }
+
+    /// The images whose first stages this one's second stage takes (its own included), in order.
+    pub fn around(&self, settings: &Settings) -> Result<Vec<usize>> {
+        let per = self.per_page()?;
+        Ok(stack::around(self.pages, self.image / per, settings).map(|z| z * per + self.image % per).collect())
+    }
+
+    /// The image's first stage: its method planes.
+    pub fn first_stage(&self, settings: &Settings, progress: &dyn Progress) -> Result<Vec<Plane>> {
+        let place = self.place()?;
+        let load = |z: usize| self.load(&place, z);
+        stack::first_stage_of(self.pages, place.z, &load, &in_working_units(settings, place.base), progress)
+    }
+
+    /// The image from the first stages of the images [`StackImage::around`] it: exactly what
+    /// [`denoise_stack`] makes of it. Returns the image alone, as a one-image document, and its run.
+    pub fn second_stage(
+        &self,
+        settings: &Settings,
+        basics: Vec<Vec<Plane>>,
+        estimate_error: bool,
+        progress: &dyn Progress,
+    ) -> Result<(Document, RunOutput)> {
+        let place = self.place()?;
+        let load = |z: usize| self.load(&place, z);
+        let working = in_working_units(settings, place.base);
+        let mut run = stack::second_stage_of(self.pages, place.z, &load, basics, &working, progress)?;
+        let mut one = file::decode_unit(self.bytes, &self.limits, self.image)?;
+        in_own_scale(&mut run, place.base, one.unit_map(0), estimate_error);
+        one.set_unit(0, run.image.clone())?;
+        Ok((one, run))
+    }
 }
 
 fn channel_label(c: usize, n: usize) -> String {

@@ -47,7 +47,7 @@ pub fn denoise_slices(
         return Err(Error::Internal("slices asked for beyond the stack".into()));
     }
     let r = settings.patch_graph.neighbour_slices as usize;
-    let around = |z: usize| z.saturating_sub(r)..(z + r + 1).min(count);
+    let around = |z: usize| around(count, z, settings);
     let mut held: BTreeMap<usize, Slice> = BTreeMap::new();
     let total = wanted.len().max(1) as f32;
     for (done, z) in wanted.clone().enumerate() {
@@ -69,16 +69,76 @@ pub fn denoise_slices(
         }
         let second = SubProgress { parent: &part, start: 0.5, span: 0.5 };
         let planes = run_slice_stage(&held, z, around(z), true, settings, &second)?;
-        let slice = held.get(&z).ok_or_else(|| Error::Internal("a slice went missing".into()))?;
-        let output = MethodOutput { planes, cut_map: None, work_units: 0 };
-        let mut run = pipeline::finish(&slice.img, settings, slice.prepared.clone(), output);
-        run.report.slices_joined = Some(neighbours(&held, z, around(z))?.len());
-        emit(z, run)?;
+        emit(z, finish(&held, z, around(z), planes, settings)?)?;
         // The next slice needs nothing before its own neighbours.
         held.retain(|&j, _| j + r > z);
     }
     progress.report(1.0, "done");
     Ok(())
+}
+
+/// The slices whose patches slice `z` may take (itself included): z - r to z + r within the stack.
+pub fn around(count: usize, z: usize, settings: &Settings) -> std::ops::Range<usize> {
+    let r = settings.patch_graph.neighbour_slices as usize;
+    z.saturating_sub(r)..(z + r + 1).min(count)
+}
+
+fn finish(
+    held: &BTreeMap<usize, Slice>,
+    z: usize,
+    range: std::ops::Range<usize>,
+    planes: Vec<Plane>,
+    settings: &Settings,
+) -> Result<RunOutput> {
+    let slice = held.get(&z).ok_or_else(|| Error::Internal("a slice went missing".into()))?;
+    let output = MethodOutput { planes, cut_map: None, work_units: 0 };
+    let mut run = pipeline::finish(&slice.img, settings, slice.prepared.clone(), output);
+    run.report.slices_joined = Some(neighbours(held, z, range)?.len());
+    Ok(run)
+}
+
+/// Slice `z`'s first stage alone, reading the slices [`around`] it through `load`: one job of a
+/// run split across workers, whose planes [`second_stage_of`] takes. The same numbers as
+/// [`denoise_slices`] makes for it.
+pub fn first_stage_of(
+    count: usize,
+    z: usize,
+    load: &dyn Fn(usize) -> Result<Image>,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Vec<Plane>> {
+    let range = around(count, z, settings);
+    let held = range.clone().map(|m| Ok((m, prepare(load(m)?, settings)?))).collect::<Result<BTreeMap<_, _>>>()?;
+    run_slice_stage(&held, z, range, false, settings, progress)
+}
+
+/// Slice `z`'s result from the first stages of the slices [`around`] it (`basics`, in slice
+/// order, as [`first_stage_of`] made them).
+pub fn second_stage_of(
+    count: usize,
+    z: usize,
+    load: &dyn Fn(usize) -> Result<Image>,
+    basics: Vec<Vec<Plane>>,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<RunOutput> {
+    let range = around(count, z, settings);
+    if basics.len() != range.len() {
+        return Err(Error::Internal(format!("{} first stages for {} slices", basics.len(), range.len())));
+    }
+    let mut held = BTreeMap::new();
+    for (m, basic) in range.clone().zip(basics) {
+        let mut slice = prepare(load(m)?, settings)?;
+        if basic.len() != slice.planes.len()
+            || basic.iter().zip(&slice.planes).any(|(b, p)| b.data.len() != p.data.len())
+        {
+            return Err(Error::Internal("a first stage does not fit its slice".into()));
+        }
+        slice.basic = Some(basic);
+        held.insert(m, slice);
+    }
+    let planes = run_slice_stage(&held, z, range.clone(), true, settings, progress)?;
+    finish(&held, z, range, planes, settings)
 }
 
 fn prepare(img: Image, settings: &Settings) -> Result<Slice> {

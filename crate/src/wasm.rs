@@ -9,6 +9,7 @@ use crate::methods::MethodOutput;
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::pipeline::RunOutput;
 use crate::planes::{Image, Plane};
+use crate::run_file::StackImage;
 use crate::{metrics, pipeline, preview, removed_detail, Error, Progress, Settings};
 use js_sys::{Array, Float32Array, Float64Array, Function, Object, Reflect, Uint8Array};
 use wasm_bindgen::prelude::*;
@@ -249,12 +250,24 @@ pub fn denoise(
     run_result(input, max_megapixels, &settings, &img, &run.map_err(js_err)?)
 }
 
-/// Image `k` of a stack denoised as a volume (`patch_graph.neighbour_slices`), one worker, only
-/// the pages it reads decoded: what [`denoise`] returns, for the image alone. `pages` and `units`
-/// are the file's, as [`open`] gave them.
-#[wasm_bindgen(js_name = denoiseSlice)]
-#[allow(clippy::too_many_arguments)]
-pub fn denoise_slice(
+/// Image `k` of a stack as a volume (`patch_graph.neighbour_slices`), split into jobs: the images
+/// whose first stages it takes, in order (`pages` and `units` as [`open`] gave them).
+#[wasm_bindgen(js_name = stackAround)]
+pub fn stack_around(k: u32, pages: u32, units: u32, settings_json: &str) -> Result<Array, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let around = stack_image(&[], k, pages, units, 0).around(&settings).map_err(js_err)?;
+    Ok(around.into_iter().map(num).collect())
+}
+
+fn stack_image(bytes: &[u8], k: u32, pages: u32, units: u32, max_megapixels: u32) -> StackImage<'_> {
+    let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
+    StackImage { bytes, limits, image: k as usize, pages: pages as usize, units: units as usize }
+}
+
+/// One job: the first stage of image `k` of a stack, decoding only the pages it reads; its
+/// method planes (an array of Float32Arrays) for [`slice_second_stage`].
+#[wasm_bindgen(js_name = sliceFirstStage)]
+pub fn slice_first_stage(
     input: &[u8],
     k: u32,
     pages: u32,
@@ -262,18 +275,45 @@ pub fn denoise_slice(
     settings_json: &str,
     max_megapixels: u32,
     on_progress: &Function,
+) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let one = stack_image(input, k, pages, units, max_megapixels);
+    let planes = one.first_stage(&settings, &JsProgress(on_progress)).map_err(js_err)?;
+    let obj = Object::new();
+    set(&obj, "planes", &plane_arrays(&planes).into())?;
+    Ok(obj.into())
+}
+
+/// The last job: image `k` of a stack from the first stages of the images [`stack_around`] it
+/// (`basics`: one array of planes each, in order); what [`denoise`] returns, for the image alone.
+#[wasm_bindgen(js_name = sliceSecondStage)]
+#[allow(clippy::too_many_arguments)]
+pub fn slice_second_stage(
+    input: &[u8],
+    k: u32,
+    pages: u32,
+    units: u32,
+    settings_json: &str,
+    basics: &Array,
+    max_megapixels: u32,
+    on_progress: &Function,
     estimate: bool,
 ) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
-    let limits = DecodeLimits { max_megapixels: u64::from(max_megapixels), ..DecodeLimits::default() };
-    let progress = JsProgress(on_progress);
-    let (k, pages, units) = (k as usize, pages as usize, units as usize);
-    let original = file::decode_unit(input, &limits, k).map_err(js_err)?;
+    let one = stack_image(input, k, pages, units, max_megapixels);
+    let original = file::decode_unit(input, &one.limits, one.image).map_err(js_err)?;
     let unit_bytes = file::encode(&original, Format::Tiff, None).map_err(js_err)?;
+    let (w, h) = (original.width(), original.height());
     drop(original);
-    let (_, run) =
-        crate::run_file::denoise_stack_unit(input, &limits, k, pages, units, &settings, estimate, &progress)
-            .map_err(js_err)?;
+    let basics = basics
+        .iter()
+        .map(|b| {
+            let b: Array = b.dyn_into().map_err(|_| JsError::new("a first stage sent to the worker is not a list"))?;
+            planes_from(&b, w, h)
+        })
+        .collect::<Result<Vec<_>, JsError>>()?;
+    let progress = JsProgress(on_progress);
+    let (_, run) = one.second_stage(&settings, basics, estimate, &progress).map_err(js_err)?;
     let img = decode(&unit_bytes, max_megapixels)?;
     run_result(&unit_bytes, max_megapixels, &settings, &img, &run)
 }

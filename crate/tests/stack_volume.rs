@@ -133,9 +133,11 @@ fn a_document_lists_each_channel_through_its_pages() {
 }
 
 #[test]
-fn a_page_worker_makes_each_image_of_a_stack_file_as_the_command_line_does() {
-    // Invariant: one image of a TIFF stack made alone (decoding only its pages) equals the
-    // same image of the whole file's run, so the page saves what the command line writes.
+fn the_pages_jobs_make_each_image_of_a_stack_file_as_the_command_line_does() {
+    // Invariant: the page splits one image of a TIFF stack into the first stages of the images
+    // around it (one job each, decoding only their pages) and a second stage; the numbers are
+    // those of the whole file's run, so the page saves what the command line writes.
+    use patchgraph::run_file::{denoise_file, StackImage};
     let (_, images) = stack(4, 20.0, 4);
     let mut doc = patchgraph::file::document_of(images[0].clone(), Format::Tiff);
     for img in &images[1..] {
@@ -145,13 +147,19 @@ fn a_page_worker_makes_each_image_of_a_stack_file_as_the_command_line_does() {
     }
     let bytes = patchgraph::file::encode(&doc, Format::Tiff, None).expect("stack encodes");
     let limits = patchgraph::file::DecodeLimits::default();
-    let read = patchgraph::file::decode(&bytes, &limits).expect("stack decodes");
     let s = Settings::default();
-    let whole = patchgraph::run_file::denoise_file(&read, &s, false, &NoProgress).expect("stack denoises");
+    let read = patchgraph::file::decode(&bytes, &limits).expect("stack decodes");
+    let whole = denoise_file(&read, &s, false, &NoProgress).expect("stack denoises");
     for k in [0, 1, 3] {
-        let (one, run) = patchgraph::run_file::denoise_stack_unit(&bytes, &limits, k, 4, 4, &s, false, &NoProgress)
-            .expect("one image denoises");
-        assert_eq!(one.unit(0).expect("unit").channels, whole.document.unit(k).expect("unit").channels, "image {k}");
+        let one = StackImage { bytes: &bytes, limits, image: k, pages: 4, units: 4 };
+        let around = one.around(&s).expect("around");
+        assert_eq!(around, (k.saturating_sub(1)..(k + 2).min(4)).collect::<Vec<_>>());
+        let basics = around
+            .iter()
+            .map(|&j| StackImage { image: j, ..one }.first_stage(&s, &NoProgress).expect("first stage"))
+            .collect();
+        let (made, run) = one.second_stage(&s, basics, false, &NoProgress).expect("second stage");
+        assert_eq!(made.unit(0).expect("unit").channels, whole.document.unit(k).expect("unit").channels, "image {k}");
         assert_eq!(run.report.slices_joined, whole.reports[k].slices_joined);
     }
 }
