@@ -46,7 +46,8 @@ function addHelp(form) {
     const dt = document.createElement('dt');
     dt.textContent = label.firstChild.textContent.trim();
     dt.className = label.closest('.only-patch-graph') ? 'only-patch-graph' : label.closest('.only-pixel-graph') ? 'only-pixel-graph' : '';
-    if (label.classList.contains('only-stack')) dt.classList.add('only-stack');
+    // A field shown only in some cases has its help shown only then.
+    for (const only of ['only-stack', 'cut-grid-only']) if (label.classList.contains(only)) dt.classList.add(only);
     const dd = document.createElement('dd');
     dd.textContent = fld.help;
     dd.className = dt.className;
@@ -489,7 +490,7 @@ export class Pane {
         : 'No result yet: press Run. Showing the input.',
       detail: r && r.detail ? `Red: where the removed part follows the result's own structure (its local correlation with the result's detail is above 0.4 over 9 × 9 pixels), so detail went with the noise there: ${fmt(100 * r.detailShare, 1)}% of the image.`
         : r ? 'Not drawn for images over 16 megapixels. Showing the input.' : 'No result yet: press Run. Showing the input.',
-      cuts: r && r.cuts ? (this.settings.pixel_graph.graph === 'non-local'
+      cuts: r && r.cuts ? ((r.settings || this.settings).pixel_graph.graph === 'non-local'
         ? 'Cut map of the non-local graph: the share of the 7 × 7 window a pixel is not joined to; darker where it is joined to more (smoothed more).'
         : 'Cut map: white where a pixel\'s graph edges are cut (an intensity edge the filter does not smooth across), black where none are.')
         : 'No cut map: it comes with a pixel-graph run. Showing the input.',

@@ -2,8 +2,9 @@
 //! the slices around it (`patch_graph.neighbour_slices` on each side), matched near the same
 //! position, so a structure that continues through z is averaged over more samples of it. Only
 //! the slice's own patches are written, so a slice's result depends on the slices around it and
-//! on nothing else: computed for the whole stack at once (the command line) or one slice at a
-//! time (a page worker), it is the same.
+//! on nothing else: computed for the whole stack at once (the command line, [`denoise_slices`])
+//! or as separate jobs (the page's workers, [`first_stage_of`] and [`second_stage_of`]), it is
+//! the same.
 //!
 //! Each slice keeps its own noise model (its own fit, stabiliser and sigma). The second stage of
 //! a slice needs the first-stage results of its neighbours, so a run over a stack keeps a sliding

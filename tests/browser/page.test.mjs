@@ -83,6 +83,12 @@ test('two settings run side by side, differ, and match the CLI', async () => {
   await page.locator('.pane').nth(1).locator('select[name=px-graph]').selectOption('non-local');
   // The edge cut does nothing on that graph, so it is not offered (invariant of the form).
   assert.equal(await page.locator('.pane').nth(1).locator('input[name=px-cut]').isVisible(), false);
+  // Nor is its line in "What these settings do" (the list holds every field's help).
+  const helpTerms = page.locator('.pane').nth(1).locator('.param-help dt');
+  await page.locator('.pane').nth(1).locator('.param-help summary').click();
+  assert.equal(await helpTerms.filter({ hasText: /^Edge cut/ }).isVisible(), false);
+  assert.equal(await helpTerms.filter({ hasText: /^Passes/ }).isVisible(), true);
+  await page.locator('.pane').nth(1).locator('.param-help summary').click();
   // Both start before either ends: clicks one after the other (concurrent clicks can interleave
   // their mouse events), then both runs are awaited.
   await page.locator('.pane').nth(0).locator('.run').click();
