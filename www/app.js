@@ -231,8 +231,8 @@ function wireBatch() {
 function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
   const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
-    'search_radius', 'graph', 'filter', 'strength', 'edge_cut', 'passes', 'residual_std_over_sigma', 'residual_lag1_correlation',
-    'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
+    'search_radius', 'neighbour_slices', 'slices_joined', 'graph', 'filter', 'strength', 'edge_cut', 'passes',
+    'residual_std_over_sigma', 'residual_lag1_correlation', 'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';
   return [['image', ...cols], ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))])];

@@ -335,6 +335,9 @@ export class Pane {
       patch_size: st.method === 'patch-graph' ? st.patch_graph.patch_size : null,
       group_size: st.method === 'patch-graph' ? st.patch_graph.group_size_hard : null,
       search_radius: st.method === 'patch-graph' ? st.patch_graph.search_radius : null,
+      neighbour_slices: st.method === 'patch-graph' ? st.patch_graph.neighbour_slices : null,
+      // Stacks: how many neighbouring slices lent their patches (absent for single images).
+      slices_joined: r.report.slices_joined ?? null,
       graph: st.method === 'pixel-graph' ? st.pixel_graph.graph : null,
       filter: st.method === 'pixel-graph' ? st.pixel_graph.filter : null,
       strength: st.method === 'pixel-graph' ? st.pixel_graph.strength : null,

@@ -55,6 +55,10 @@ test('a TIFF z-stack: one slice control for all settings, every page saved', asy
   // Denoised as a slice of the volume: the page says how many slices lent their patches.
   const metrics = await pane().locator('.metrics').textContent();
   assert.match(metrics, /Slices joined1/);
+  // The table under the board (= the metrics CSV) says the same, beside the setting.
+  const table = await page.locator('#summary-table tr').evaluateAll((rows) => rows.map((r) => [...r.children].map((c) => c.textContent)));
+  const col = (name) => table[1][table[0].indexOf(name)];
+  assert.deepEqual([col('neighbour_slices'), col('slices_joined')], ['1', '1']);
   // Another slice: the pane has no result for it yet, and says nothing stale.
   await page.locator('#slice').fill('2');
   await page.waitForFunction(() => /^page 2 of 3$/.test(document.getElementById('slice-label').textContent));
