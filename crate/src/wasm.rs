@@ -303,8 +303,10 @@ pub fn slice_second_stage(
     let one = stack_image(input, k, pages, units, max_megapixels);
     let original = file::decode_unit(input, &one.limits, one.image).map_err(js_err)?;
     let unit_bytes = file::encode(&original, Format::Tiff, None).map_err(js_err)?;
-    let (w, h) = (original.width(), original.height());
+    // The input image as a run on `unit_bytes` would read it (a unit written alone reads back the same).
+    let img = original.unit(0).map_err(js_err)?;
     drop(original);
+    let (w, h) = (img.width, img.height);
     let basics = basics
         .iter()
         .map(|b| {
@@ -314,7 +316,6 @@ pub fn slice_second_stage(
         .collect::<Result<Vec<_>, JsError>>()?;
     let progress = JsProgress(on_progress);
     let (_, run) = one.second_stage(&settings, basics, estimate, &progress).map_err(js_err)?;
-    let img = decode(&unit_bytes, max_megapixels)?;
     run_result(&unit_bytes, max_megapixels, &settings, &img, &run)
 }
 
