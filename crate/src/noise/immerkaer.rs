@@ -10,10 +10,10 @@
 use crate::planes::Plane;
 
 const BLOCK: usize = 16;
-pub const QUANTILE: f64 = 0.25;
+const QUANTILE: f64 = 0.25;
 /// Lower quartile of 16 x 16 block means of |I * M| over their overall mean, for pure Gaussian
 /// noise (measured by simulation on 512 x 512 fields; checked by the unit test below).
-pub const QUARTILE_BIAS: f64 = 0.94;
+const QUARTILE_BIAS: f64 = 0.94;
 const SCALE: f64 = 1.253_314_137_315_500_3 / 6.0; // sqrt(pi/2) / 6
 
 /// |I * M| on the interior, as a (w-2) x (h-2) row-major array.
