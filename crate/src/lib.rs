@@ -4,6 +4,10 @@
 //! returns bytes, numbers and typed errors. The CLI (`src/bin/patchgraph`) and the wasm bindings
 //! (`wasm.rs`, built only for wasm32) are thin faces over [`pipeline`].
 
+// The house rule made a check: nothing a user controls may panic, so the shipped code holds no
+// unwrap or expect (tests may).
+#![cfg_attr(not(test), deny(clippy::unwrap_used, clippy::expect_used))]
+
 pub mod color;
 pub mod error;
 pub mod error_estimate;
