@@ -51,14 +51,15 @@ def test_colour_keeps_channels_and_beats_the_noise(tmp_path, patchgraph):
 # Floors per kind of image, blind, sigma 25 and 50, 0.3 dB under what was measured when they were
 # set (the per-image table in BENCHMARKS.md): a regression on any kind of image fails here.
 KIND_FLOORS = {
-    ("retina256", 25): 38.15, ("retina256", 50): 34.8,        # smooth biological tissue
-    ("phantom256", 25): 32.85, ("phantom256", 50): 28.1,      # piecewise constant, black clipped background
-    ("blobs256", 25): 36.7, ("blobs256", 50): 31.9,           # smooth shapes
-    ("micrograph256", 25): 35.5, ("micrograph256", 50): 31.55,  # ours: fluorescence, dim background
-    # Ours: point sources on black. Lowered by 0.5 dB when flat groups began to grow (a trade
-    # made on purpose: +0.1 dB on the set, +0.3 to +0.6 dB on the smooth images peers led on).
-    ("stars256", 25): 34.95, ("stars256", 50): 30.95,
-    ("clock", 25): 39.4, ("clock", 50): 34.95,                # flat surfaces, text
+    ("retina256", 25): 38.65, ("retina256", 50): 35.95,       # smooth biological tissue
+    ("phantom256", 25): 32.95, ("phantom256", 50): 28.0,      # piecewise constant, black clipped background
+    ("blobs256", 25): 37.1, ("blobs256", 50): 32.15,          # smooth shapes
+    ("micrograph256", 25): 35.45, ("micrograph256", 50): 31.5,  # ours: fluorescence, dim background
+    # Ours: point sources on black. Lowered by 0.5 dB when flat groups began to grow and by 0.2 dB
+    # more with their raised threshold (trades made on purpose: each gained on the set and most on
+    # the smooth images peers led on; the stars stay about 5 dB ahead of the peers).
+    ("stars256", 25): 34.85, ("stars256", 50): 30.7,
+    ("clock", 25): 40.05, ("clock", 50): 36.1,                # flat surfaces, text
 }
 
 

@@ -168,6 +168,33 @@ fn lf_distance(a: &[f32], b: &[f32], lf: &[usize]) -> f64 {
 /// stage 1 only, or testing the whole patch, kept less of the gain without sparing the stars.
 const FLAT_GROWTH: usize = 2;
 
+/// In stage 1, a group that grew ([`FLAT_GROWTH`]) and whose graph frequencies past the first
+/// hold no more energy than the noise explains has its threshold there raised by this factor
+/// (2.7 -> 3.3): such a group's signal is its mean patch, and with twice the coefficients twice
+/// as many noise coefficients pass the usual threshold, which is the faint "worm" texture left
+/// on flat areas. Measured blind on the development set: see DEVELOPERS.md.
+const FLAT_THRESHOLD: f32 = 1.222;
+
+/// The energy test of [`FLAT_THRESHOLD`]: noise alone gives m = (n - 1) k^2 unit-variance
+/// coefficients past the first graph frequency, so their sum is m with std sqrt(2 m); a group
+/// above m + this many stds holds structure (texture that passed the low-frequency test).
+const FLAT_ENERGY_STDS: f64 = 3.0;
+
+/// The stage-1 threshold factor of a group's graph frequencies past the first, from the
+/// transformed coefficients `t` (n rows of k^2) and the per-coefficient noise variances.
+fn flat_threshold_factor(t: &[f32], var: &[f32], kk: usize, grown: bool) -> f32 {
+    if !grown || t.len() <= kk {
+        return 1.0;
+    }
+    let energy: f64 =
+        t[kk..].iter().enumerate().map(|(i, v)| f64::from(v * v) / f64::from(var[i % kk]).max(1e-12)).sum();
+    let (m, sd) = ((t.len() - kk) as f64, (2.0 * (t.len() - kk) as f64).sqrt());
+    // A ramp, not a step, from the full factor at one std above m to none at FLAT_ENERGY_STDS + 2:
+    // the result then moves continuously with the input, as the error estimate's probe assumes.
+    let share = ((m + (FLAT_ENERGY_STDS + 2.0) * sd - energy) / ((FLAT_ENERGY_STDS + 1.0) * sd)).clamp(0.0, 1.0);
+    1.0 + (FLAT_THRESHOLD - 1.0) * share as f32
+}
+
 /// How far (pixels) from a reference's position its neighbouring slices are searched. Slices of a
 /// stack are in register, so a structure continues near where it is.
 pub const SLICE_SEARCH: usize = 6;
@@ -465,11 +492,13 @@ impl<'a> Stage<'a> {
             let cn = &self.noise[ch];
             match &basic_c {
                 None => {
+                    let raise = flat_threshold_factor(&t, &cn.var, kk, n > self.group_size());
                     let mut kept = 0.0f64;
                     for (idx, v) in t.iter_mut().enumerate() {
                         let f = idx % kk;
+                        let thr = if idx < kk { cn.thr[f] } else { cn.thr[f] * raise };
                         // The group's mean patch DC (index 0) always stays.
-                        if idx == 0 || v.abs() >= cn.thr[f] {
+                        if idx == 0 || v.abs() >= thr {
                             kept += cn.rel[f];
                         } else {
                             *v = 0.0;
