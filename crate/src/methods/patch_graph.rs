@@ -169,15 +169,16 @@ fn lf_distance(a: &[f32], b: &[f32], lf: &[usize]) -> f64 {
 const FLAT_GROWTH: usize = 2;
 
 /// In stage 1, a group that grew ([`FLAT_GROWTH`]) and whose graph frequencies past the first
-/// hold no more energy than the noise explains has its threshold there raised by this factor
+/// hold no more energy than the noise explains has its threshold there raised by up to this factor
 /// (2.7 -> 3.3): such a group's signal is its mean patch, and with twice the coefficients twice
 /// as many noise coefficients pass the usual threshold, which is the faint "worm" texture left
 /// on flat areas. Measured blind on the development set: see DEVELOPERS.md.
 const FLAT_THRESHOLD: f32 = 1.222;
 
 /// The energy test of [`FLAT_THRESHOLD`]: noise alone gives m = (n - 1) k^2 unit-variance
-/// coefficients past the first graph frequency, so their sum is m with std sqrt(2 m); a group
-/// above m + this many stds holds structure (texture that passed the low-frequency test).
+/// coefficients past the first graph frequency, so their sum is m with std sqrt(2 m); the raise
+/// is half at m + this many stds, whole two stds below, none two above (beyond, the group holds
+/// structure: texture that passed the low-frequency test).
 const FLAT_ENERGY_STDS: f64 = 3.0;
 
 /// The stage-1 threshold factor of a group's graph frequencies past the first, from the
@@ -189,8 +190,8 @@ fn flat_threshold_factor(t: &[f32], var: &[f32], kk: usize, grown: bool) -> f32 
     let energy: f64 =
         t[kk..].iter().enumerate().map(|(i, v)| f64::from(v * v) / f64::from(var[i % kk]).max(1e-12)).sum();
     let (m, sd) = ((t.len() - kk) as f64, (2.0 * (t.len() - kk) as f64).sqrt());
-    // A ramp, not a step, from the full factor at one std above m to none at FLAT_ENERGY_STDS + 2:
-    // the result then moves continuously with the input, as the error estimate's probe assumes.
+    // A ramp, not a step: the result then moves continuously with the input, as the error
+    // estimate's probe assumes (a step read coffee at sigma 50 0.43 dB high).
     let share = ((m + (FLAT_ENERGY_STDS + 2.0) * sd - energy) / ((FLAT_ENERGY_STDS + 1.0) * sd)).clamp(0.0, 1.0);
     1.0 + (FLAT_THRESHOLD - 1.0) * share as f32
 }
