@@ -13,7 +13,7 @@ const fields = {
   noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; },
     help: 'What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.' },
   'pg-threshold': { get: (s) => s.patch_graph.threshold, set: (s, v) => { s.patch_graph.threshold = +v; },
-    help: 'Coefficients below this many sigmas are taken for noise in the first pass. Higher: smoother, more fine detail lost.' },
+    help: 'Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost.' },
   'pg-patch': { get: (s) => s.patch_graph.patch_size, set: (s, v) => { s.patch_graph.patch_size = +v; },
     help: 'Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.' },
   'pg-group': {
