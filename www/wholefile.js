@@ -41,7 +41,6 @@ export function runStack(file, wanted, pages, units, settings, onProgress, estim
   };
   const start = (kind, payload, id) => {
     if (stopped) return Promise.reject(new Stopped('stopped'));
-    jobs += 1;
     const j = task(kind, { bytes: file.slice(), pages, units, settings, ...payload }, (f, s) => tell(id, f, s));
     running.add(j);
     return j.promise.finally(() => { running.delete(j); tell(id, 1, 'working through the slices'); });
@@ -51,6 +50,9 @@ export function runStack(file, wanted, pages, units, settings, onProgress, estim
     for (const k of wanted) around.set(k, (await call('stackAround', { unit: k, pages, units, settings })).units);
     const users = new Map();
     for (const list of around.values()) for (const j of list) users.set(j, (users.get(j) || 0) + 1);
+    // Every job is known now (one first stage per image read, one second stage per image wanted),
+    // so the bar only moves forward.
+    jobs = users.size + wanted.length;
     const firsts = new Map();
     const first = (j) => {
       if (!firsts.has(j)) firsts.set(j, start('sliceFirst', { unit: j }, `first ${j}`));
