@@ -66,6 +66,11 @@ pub fn exp_same_everywhere(x: f64) -> f64 {
     if x < -745.0 {
         return 0.0;
     }
+    if x == 0.0 {
+        // What the steps below give exactly (r = 0, k = 0); the group graphs ask it of most pairs
+        // of a flat group, whose distances the noise explains.
+        return 1.0;
+    }
     // ln 2 split in two (fdlibm's constants; the high part has trailing zero bits, so k * HI is
     // exact) to keep the reduction accurate for large |k|.
     #[allow(clippy::excessive_precision)] // the published digits, kept as published

@@ -388,6 +388,7 @@ impl<'a> Stage<'a> {
             min_similarity: self.prof.min_similarity,
             range: self.range,
             noise_var: if basic.is_some() { 0.0 } else { self.match_var },
+            step: self.prof.step,
         };
         let sub = SubProgress { parent: progress, start: 0.0, span: 0.5 };
         let groups = match_groups_across(guides[0], &guides[1..], SLICE_SEARCH, &local, &mp, &sub)?;
@@ -655,6 +656,7 @@ pub fn group_at(
         min_similarity: prof.min_similarity,
         range: max_value,
         noise_var: luma_sigma * luma_sigma,
+        step: prof.step,
     };
     let groups = match_groups(luma, &[(rx, ry)], &mp, &crate::progress::NoProgress)?;
     let mut g = groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))?;
