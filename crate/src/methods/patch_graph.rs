@@ -527,6 +527,17 @@ impl<'a> Stage<'a> {
         // Inverse across the group (C_i = sum_j u_ij T_j), the inverse 2-D DCT, then aggregation.
         let (mut coeff, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
         let mut patch = vec![vec![0.0f32; kk]; channels];
+        // After hard thresholding most of a group's coefficients are zero: the inverse then runs
+        // over the kept ones alone, in the same order per coefficient (j ascending), so the sums
+        // are the dense loop's bit for bit (a zero term adds nothing).
+        let kept: Vec<Option<Vec<(usize, usize, f32)>>> = filtered
+            .iter()
+            .map(|t| {
+                let nz: Vec<(usize, usize, f32)> =
+                    t.iter().enumerate().filter(|(_, v)| **v != 0.0).map(|(idx, v)| (idx / kk, idx % kk, *v)).collect();
+                (nz.len() * 4 < t.len()).then_some(nz)
+            })
+            .collect();
         for (i, &(x, y)) in group.positions.iter().take(n).enumerate() {
             // Patches of neighbouring slices helped filter; only the own slice is written.
             if group.slice(i) != 0 {
@@ -534,8 +545,9 @@ impl<'a> Stage<'a> {
             }
             for (ch, t) in filtered.iter().enumerate() {
                 coeff.iter_mut().for_each(|v| *v = 0.0);
-                for j in 0..n {
-                    axpy(&mut coeff, u[i * n + j], &t[j * kk..(j + 1) * kk]);
+                match &kept[ch] {
+                    Some(nz) => nz.iter().for_each(|&(j, f, v)| coeff[f] += u[i * n + j] * v),
+                    None => (0..n).for_each(|j| axpy(&mut coeff, u[i * n + j], &t[j * kk..(j + 1) * kk])),
                 }
                 idct2(&self.dct, k, &coeff, &mut patch[ch], &mut tmp);
             }

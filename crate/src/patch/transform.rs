@@ -85,6 +85,38 @@ fn idct2_body(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
 /// group, the same every time, instead of whatever the eigensolver returns.
 const PATH_TIE_BREAK: f64 = 1e-3;
 
+thread_local! {
+    /// The complete graph's basis per group size, made once per thread: flat groups ask for it
+    /// thousands of times per image and each costs n^2 cosines.
+    static COMPLETE_BASES: std::cell::RefCell<Vec<Option<DMatrix<f64>>>> = const { std::cell::RefCell::new(Vec::new()) };
+}
+
+/// The DCT-II basis across n patches in frequency order, each vector's largest-magnitude entry
+/// positive (the sign rule of the eigensolver's path below).
+fn complete_graph_basis(n: usize) -> DMatrix<f64> {
+    COMPLETE_BASES.with(|cache| {
+        let mut cache = cache.borrow_mut();
+        if cache.len() <= n {
+            cache.resize(n + 1, None);
+        }
+        cache[n]
+            .get_or_insert_with(|| {
+                let c = dct_matrix(n);
+                let mut u = DMatrix::<f64>::zeros(n, n);
+                for f in 0..n {
+                    let col: Vec<f64> = (0..n).map(|i| f64::from(c[f * n + i])).collect();
+                    let imax = (0..n).fold(0, |m, i| if col[i].abs() > col[m].abs() { i } else { m });
+                    let sign = if col[imax] < 0.0 { -1.0 } else { 1.0 };
+                    for i in 0..n {
+                        u[(i, f)] = sign * col[i];
+                    }
+                }
+                u
+            })
+            .clone()
+    })
+}
+
 /// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
 /// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
 pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
@@ -93,18 +125,7 @@ pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
     // (the eigensolver would give the same up to rounding, at O(n^3)).
     let w0 = if n > 1 { weights[1] } else { 0.0 };
     if n > 1 && w0 > 0.0 && (0..n).all(|i| (0..n).all(|j| i == j || weights[i * n + j] == w0)) {
-        let c = dct_matrix(n);
-        let mut u = DMatrix::<f64>::zeros(n, n);
-        for f in 0..n {
-            // Same sign rule as below: the largest-magnitude entry positive.
-            let col: Vec<f64> = (0..n).map(|i| f64::from(c[f * n + i])).collect();
-            let imax = (0..n).fold(0, |m, i| if col[i].abs() > col[m].abs() { i } else { m });
-            let sign = if col[imax] < 0.0 { -1.0 } else { 1.0 };
-            for i in 0..n {
-                u[(i, f)] = sign * col[i];
-            }
-        }
-        return u;
+        return complete_graph_basis(n);
     }
     let mean_w = weights.iter().sum::<f64>() / (n * n.saturating_sub(1)).max(1) as f64;
     let mut l = DMatrix::<f64>::zeros(n, n);
