@@ -74,6 +74,64 @@ pub(crate) fn ref_axis(n: usize, k: usize, step: usize) -> Vec<usize> {
     v
 }
 
+/// The planes of a tile's crop (per slice, own first, then per channel) with the 2-D DCT of each
+/// patch made once, however many groups it joins (a patch joins several neighbouring references'
+/// groups, and the flat-group test transforms candidates on its own).
+struct TileSpectra<'a> {
+    planes: &'a [Vec<Plane>],
+    k: usize,
+    /// Per (slice, channel, corner): 1 + the patch's index in `data`, 0 while not transformed.
+    slot: std::cell::RefCell<Vec<u32>>,
+    data: std::cell::RefCell<Vec<f32>>,
+}
+
+impl<'a> TileSpectra<'a> {
+    fn new(planes: &'a [Vec<Plane>], k: usize) -> Self {
+        let corners = planes.first().and_then(|s| s.first()).map_or(0, |p| p.width * p.height);
+        let channels = planes.first().map_or(0, Vec::len);
+        TileSpectra {
+            planes,
+            k,
+            slot: std::cell::RefCell::new(vec![0; planes.len() * channels * corners]),
+            data: std::cell::RefCell::new(Vec::new()),
+        }
+    }
+
+    /// Without the cache, for a look at one group of a whole image (whose corner table would be
+    /// as large as the image).
+    fn uncached(planes: &'a [Vec<Plane>], k: usize) -> Self {
+        TileSpectra { planes, k, slot: std::cell::RefCell::new(Vec::new()), data: std::cell::RefCell::new(Vec::new()) }
+    }
+
+    /// Writes the DCT of the patch at (x, y) of `slice`'s channel `ch` into `out`.
+    fn coeffs(&self, dct: &[f32], slice: usize, ch: usize, (x, y): (usize, usize), out: &mut [f32]) {
+        let (k, kk) = (self.k, self.k * self.k);
+        let plane = &self.planes[slice][ch];
+        let corners = plane.width * plane.height;
+        let at = (slice * self.planes[0].len() + ch) * corners + y * plane.width + x;
+        let transform = |out: &mut [f32]| {
+            let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
+            for r in 0..k {
+                buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
+            }
+            dct2(dct, k, &buf, out, &mut tmp);
+        };
+        let mut slot = self.slot.borrow_mut();
+        if slot.is_empty() {
+            return transform(out);
+        }
+        let mut data = self.data.borrow_mut();
+        if slot[at] == 0 {
+            let start = data.len();
+            data.resize(start + kk, 0.0);
+            transform(&mut data[start..]);
+            slot[at] = (start / kk + 1) as u32;
+        }
+        let start = (slot[at] as usize - 1) * kk;
+        out.copy_from_slice(&data[start..start + kk]);
+    }
+}
+
 /// Copies the rectangle [x0, x0 + w) x [y0, y0 + h) of a plane.
 fn crop(p: &Plane, x0: usize, y0: usize, w: usize, h: usize) -> Plane {
     let mut data = Vec::with_capacity(w * h);
@@ -393,36 +451,31 @@ impl<'a> Stage<'a> {
         let sub = SubProgress { parent: progress, start: 0.0, span: 0.5 };
         let groups = match_groups_across(guides[0], &guides[1..], SLICE_SEARCH, &local, &mp, &sub)?;
         let mut acc = Accumulator::new(x0, y0, cw, ch, self.noisy.len());
+        let noisy = TileSpectra::new(&noisy, k);
+        let basic = basic.as_deref().map(|b| TileSpectra::new(b, k));
         for (g, group) in groups.iter().enumerate() {
             if g % 64 == 0 {
                 check(progress)?;
                 progress.report(0.5 + 0.5 * g as f32 / groups.len() as f32, "filtering groups");
             }
-            self.filter_group(group, &noisy, basic.as_deref(), &mut acc);
+            self.filter_group(group, &noisy, basic.as_ref(), &mut acc);
         }
         Ok(acc)
     }
 
-    /// 2-D DCT of patches `range` of a group in plane `ch` of their slices (`slices[s][ch]`),
-    /// patch i at [i k^2, (i+1) k^2).
+    /// 2-D DCT of patches `range` of a group in plane `ch` of their slices, patch i at
+    /// [i k^2, (i+1) k^2).
     fn patch_coeffs_of(
         &self,
-        slices: &[Vec<Plane>],
+        spectra: &TileSpectra,
         ch: usize,
         group: &Group,
         range: std::ops::Range<usize>,
     ) -> Vec<f32> {
-        let k = self.prof.patch;
-        let kk = k * k;
-        let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
+        let kk = self.prof.patch * self.prof.patch;
         let mut out = vec![0.0f32; range.len() * kk];
         for (i, g) in range.enumerate() {
-            let (x, y) = group.positions[g];
-            let plane = &slices[group.slice(g)][ch];
-            for r in 0..k {
-                buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
-            }
-            dct2(&self.dct, k, &buf, &mut out[i * kk..(i + 1) * kk], &mut tmp);
+            spectra.coeffs(&self.dct, group.slice(g), ch, group.positions[g], &mut out[i * kk..(i + 1) * kk]);
         }
         out
     }
@@ -430,7 +483,7 @@ impl<'a> Stage<'a> {
     /// How many of the group's patches (best first) to keep: the group size, and beyond it only
     /// candidates the noise cannot tell from the reference ([`FLAT_GROWTH`]). `plane` is the one
     /// the group graph is built from; candidates are transformed one at a time, only while they pass.
-    fn keep_count(&self, slices: &[Vec<Plane>], group: &Group, noisy: bool) -> usize {
+    fn keep_count(&self, slices: &TileSpectra, group: &Group, noisy: bool) -> usize {
         let base = self.group_size();
         let n = group.len();
         if n <= base || self.prof.group_graph != GroupGraph::NoiseTested {
@@ -444,7 +497,7 @@ impl<'a> Stage<'a> {
     }
 
     /// `noisy` and `basic`: per slice (own first), the planes of the tile's crop.
-    fn filter_group(&self, group: &Group, noisy: &[Vec<Plane>], basic: Option<&[Vec<Plane>]>, acc: &mut Accumulator) {
+    fn filter_group(&self, group: &Group, noisy: &TileSpectra, basic: Option<&TileSpectra>, acc: &mut Accumulator) {
         let k = self.prof.patch;
         let kk = k * k;
         let sigma2 = self.sigma * self.sigma;
@@ -674,7 +727,8 @@ pub fn group_at(
     let mut g = groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))?;
     // The patches stage 1 keeps, as a run decides (white noise of `sigma` assumed here).
     let stage = Stage::new(std::slice::from_ref(luma), None, 0, luma.height, sigma, max_value, s, None)?;
-    let n = stage.keep_count(&[vec![luma.clone()]], &g, true);
+    let planes = [vec![luma.clone()]];
+    let n = stage.keep_count(&TileSpectra::uncached(&planes, k), &g, true);
     g.truncate(n);
     Ok(g)
 }
