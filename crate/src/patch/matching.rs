@@ -230,7 +230,14 @@ fn patch_stats(values: &[f64], sums: &mut BoxSums, w: usize, h: usize, noise_var
 /// taken out the ratio can pass 1 by chance; ranking uses it as it is.
 #[inline]
 pub fn patch_ssim(ma: f64, mb: f64, va: f64, vb: f64, cov: f64, c1: f64, c2: f64) -> f64 {
-    ((2.0 * ma * mb + c1) * (2.0 * cov + c2)) / ((ma * ma + mb * mb + c1) * (va + vb + c2))
+    let (num, den) = ssim_parts(ma, mb, va, vb, cov, c1, c2);
+    num / den
+}
+
+/// [`patch_ssim`]'s numerator and denominator (the denominator is positive when c1, c2 > 0).
+#[inline]
+fn ssim_parts(ma: f64, mb: f64, va: f64, vb: f64, cov: f64, c1: f64, c2: f64) -> (f64, f64) {
+    ((2.0 * ma * mb + c1) * (2.0 * cov + c2), (ma * ma + mb * mb + c1) * (va + vb + c2))
 }
 
 /// Groups for the given reference corners (all with x + patch <= width, y + patch <= height).
@@ -314,11 +321,10 @@ pub fn match_groups_across(
             let (mr, vr) = pos_stats[ry * pw + rx];
             let (mc, vc) = stats[cy as usize * pw + cx as usize];
             let cov = blocks.square(i, &sums) / kk - mr * mc;
-            // patch_ssim's numerator and denominator, grouped as it groups them: a candidate that
+            // patch_ssim's numerator and denominator: a candidate that
             // falls clearly short of what it must beat is passed over without the division (the
             // margin of 1e-6 is far above the rounding of the quotient and of its f32 copy).
-            let num = (2.0 * mr * mc + c1) * (2.0 * cov + c2);
-            let den = (mr * mr + mc * mc + c1) * (vr + vc + c2);
+            let (num, den) = ssim_parts(mr, mc, vr, vc, cov, c1, c2);
             let floor = best[i].floor().max(p.min_similarity) * den;
             if den > 0.0 && num < floor - 1e-6 * floor.abs() {
                 continue;
