@@ -98,3 +98,26 @@ def test_white_noise_stays_white(tmp_path, patchgraph, name, sigma):
     io.imsave(tmp_path / "w.png", devset.add_noise(devset.grey_images()[name], sigma), check_contrast=False)
     got = patchgraph("noise", tmp_path / "w.png")
     assert got["model"] == "white Gaussian", got["explanation"]
+
+
+def test_a_known_offset_gives_the_read_noise_where_the_scene_has_no_black(tmp_path, patchgraph):
+    # Known truth by construction: 100 + 8 Poisson(30 x) + N(0, 12^2) on a ramp whose darkest
+    # level is 5% of full scale, so no area gets no light and the fitted black level is the
+    # darkest smooth level, not the offset. Given the offset (as a dark frame or data sheet gives
+    # it), the read noise follows: within 10% of 12 at peak 30. The offset is kept as given.
+    s = ramp()
+    rng = np.random.Generator(np.random.PCG64(7))
+    f = np.clip(np.rint(100 + 8 * rng.poisson(30 * s) + 12 * rng.standard_normal(s.shape)), 0, 65535)
+    io.imsave(tmp_path / "f.png", f.astype(np.uint16), check_contrast=False)
+    fitted = patchgraph("noise", tmp_path / "f.png")["channels"][0]["photon"]
+    assert fitted["offset_fitted"] and fitted["offset"] > 105, fitted
+    given = patchgraph("noise", tmp_path / "f.png", "--offset", "100")["channels"][0]["photon"]
+    assert given["offset"] == 100.0 and not given["offset_fitted"], given
+    assert abs(given["gain"] / 8 - 1) <= 0.10, given
+    assert abs(given["read_noise"] / 12 - 1) <= 0.10, given
+
+
+def test_the_noise_command_refuses_a_malformed_parameter(tmp_path, patchgraph):
+    io.imsave(tmp_path / "f.png", np.full((64, 64), 100, np.uint8), check_contrast=False)
+    with pytest.raises(AssertionError, match='gain must be a number or "auto", got "many"'):
+        patchgraph("noise", tmp_path / "f.png", "--gain", "many")

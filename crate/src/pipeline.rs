@@ -286,8 +286,10 @@ pub struct NoiseFit {
     pub spectra_8: Vec<Option<NoiseSpectrum>>,
 }
 
-pub fn fit_noise(img: &Image) -> Result<NoiseFit> {
-    let p = prepare(img, &Settings::default())?;
+/// The noise model of an image as `prepare` makes it: fitted where the settings say auto, the
+/// parameters they give taken as given.
+pub fn fit_noise(img: &Image, settings: &Settings) -> Result<NoiseFit> {
+    let p = prepare(img, settings)?;
     let spectra_8 = method_planes(&p).iter().map(|q| spectrum::estimate(q, 8)).collect();
     Ok(NoiseFit { report: p.noise, spectra_8 })
 }

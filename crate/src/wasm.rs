@@ -163,7 +163,7 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
 #[wasm_bindgen(js_name = fitNoise)]
 pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<String, JsError> {
     let img = decode(input, max_megapixels)?;
-    let fit = pipeline::fit_noise(&img).map_err(js_err)?;
+    let fit = pipeline::fit_noise(&img, &Settings::default()).map_err(js_err)?;
     let v = serde_json::json!({
         "model": fit.report.model,
         "sentence": fit.report.sentence,

@@ -146,9 +146,9 @@ def run_cli(exe, noisy, out, extra=()):
     return json.loads(r.stdout)
 
 
-def noise_fit(exe, path):
+def noise_fit(exe, path, *extra):
     import subprocess
-    return json.loads(subprocess.run([exe, "noise", path, "--json"], capture_output=True, check=True).stdout)
+    return json.loads(subprocess.run([exe, "noise", path, "--json", *extra], capture_output=True, check=True).stdout)
 
 
 def camera_rows(exe, work):
@@ -197,10 +197,13 @@ def frame_rows(exe, work):
         for k in (0.5, 0.8, 1.1):
             den = denoise_tv_chambolle(d, weight=k)
             best = max(best, (peak_signal_noise_ratio(expected, _gat_inverse(den), data_range=rng_), "GAT + scikit-image TV"))
+        # The read noise when the camera's offset is known (a data sheet or a dark frame gives it):
+        # without a black area in the scene the fit cannot separate offset from read noise.
+        given = noise_fit(exe, np_, "--offset", str(OFFSET))["channels"][0].get("photon") or {}
         out.append(dict(image=name, noise=f"peak {peak}", input=peak_signal_noise_ratio(expected, noisy, data_range=rng_),
                         patchgraph=pg, peer=best[0], peer_name=best[1], model=rep["noise_model"]["model"],
                         gain=photon.get("gain", float("nan")), read=photon.get("read_noise", float("nan")),
-                        offset=photon.get("offset", float("nan"))))
+                        offset=photon.get("offset", float("nan")), read_given=given.get("read_noise", float("nan"))))
     return out
 
 
@@ -214,7 +217,7 @@ def table(exe, work):
     for r in fr:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | gain {r['gain']:.2f} (true {GAIN:g}), read {r['read']:.2f} "
-                     f"(true {READ:g}), offset {r['offset']:.1f} (true {OFFSET:g}) |")
+                     f"(true {READ:g}), offset {r['offset']:.1f} (true {OFFSET:g}); read {r['read_given']:.2f} with the offset given |")
     summary = []
     for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr)):
         d = np.mean([r["patchgraph"] - r["peer"] for r in rows])

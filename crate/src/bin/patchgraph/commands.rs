@@ -87,6 +87,46 @@ pub fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
     write_atomically(path, bytes).map_err(|e| Failure::user(format!("{}: cannot write the file ({e})", path.display())))
 }
 
+/// What the noise is and any of its photon parameters, given instead of fitted.
+#[derive(clap::Args)]
+pub struct ModelArgs {
+    /// What the noise is (default: auto, fitted from the image).
+    #[arg(long, value_enum)]
+    pub noise: Option<NoiseArg>,
+    /// Photon noise: grey levels per photon, or "auto".
+    #[arg(long)]
+    pub gain: Option<String>,
+    /// Photon noise: the black level (grey level of no light), or "auto".
+    #[arg(long, allow_hyphen_values = true)]
+    pub offset: Option<String>,
+    /// Photon noise: the read-noise std in grey levels, or "auto".
+    #[arg(long)]
+    pub read_noise: Option<String>,
+}
+
+impl ModelArgs {
+    /// Writes the options given into the settings.
+    fn apply(&self, s: &mut Settings) -> Result<(), Failure> {
+        if let Some(n) = self.noise {
+            s.noise = match n {
+                NoiseArg::Auto => NoiseModel::Auto,
+                NoiseArg::Gaussian => NoiseModel::Gaussian,
+                NoiseArg::Poisson => NoiseModel::Poisson,
+            };
+        }
+        for (name, text, field) in [
+            ("gain", &self.gain, &mut s.gain),
+            ("offset", &self.offset, &mut s.offset),
+            ("read-noise", &self.read_noise, &mut s.read_noise),
+        ] {
+            if let Some(text) = text {
+                *field = auto_or_number(name, text)?;
+            }
+        }
+        Ok(())
+    }
+}
+
 #[derive(clap::Args)]
 pub struct DenoiseArgs {
     /// The noisy image (TIFF, FITS, PNG, JPEG or BMP; every page and channel); it is never changed.
@@ -100,18 +140,8 @@ pub struct DenoiseArgs {
     /// Noise sigma in the input's grey levels, or "auto" to estimate it.
     #[arg(long, allow_hyphen_values = true)]
     pub sigma: Option<String>,
-    /// What the noise is (default: auto, fitted from the image).
-    #[arg(long, value_enum)]
-    pub noise: Option<NoiseArg>,
-    /// Photon noise: grey levels per photon, or "auto".
-    #[arg(long)]
-    pub gain: Option<String>,
-    /// Photon noise: the black level (grey level of no light), or "auto".
-    #[arg(long, allow_hyphen_values = true)]
-    pub offset: Option<String>,
-    /// Photon noise: the read-noise std in grey levels, or "auto".
-    #[arg(long)]
-    pub read_noise: Option<String>,
+    #[command(flatten)]
+    pub model: ModelArgs,
     /// Stacks (patch-graph): slices on each side of a page whose patches join its groups
     /// (0 to 2; default 1); 0 denoises every page alone.
     #[arg(long)]
@@ -175,22 +205,9 @@ fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
             MethodArg::PatchGraph => Method::PatchGraph,
         };
     }
-    if let Some(n) = a.noise {
-        s.noise = match n {
-            NoiseArg::Auto => NoiseModel::Auto,
-            NoiseArg::Gaussian => NoiseModel::Gaussian,
-            NoiseArg::Poisson => NoiseModel::Poisson,
-        };
-    }
-    for (name, text, field) in [
-        ("sigma", &a.sigma, &mut s.sigma),
-        ("gain", &a.gain, &mut s.gain),
-        ("offset", &a.offset, &mut s.offset),
-        ("read-noise", &a.read_noise, &mut s.read_noise),
-    ] {
-        if let Some(text) = text {
-            *field = auto_or_number(name, text)?;
-        }
+    a.model.apply(&mut s)?;
+    if let Some(text) = &a.sigma {
+        s.sigma = auto_or_number("sigma", text)?;
     }
     if let Some(n) = a.neighbour_slices {
         s.patch_graph.neighbour_slices = n;
@@ -328,13 +345,16 @@ pub fn denoise(a: DenoiseArgs) -> CmdResult {
     Ok(())
 }
 
-pub fn noise(input: &Path, number: usize, json_out: bool) -> CmdResult {
+pub fn noise(input: &Path, number: usize, model: &ModelArgs, json_out: bool) -> CmdResult {
+    let mut settings = Settings::default();
+    model.apply(&mut settings)?;
+    settings.validate().map_err(|e| Failure::user(e.to_string()))?;
     let (img, doc) = read_image(input, number, &DecodeLimits::default())?;
     if doc.units() > 1 && !json_out {
         let label = doc.unit_label(number - 1);
         outln!("{}: image {number} of {} ({label}); --image N fits another", input.display(), doc.units());
     }
-    let fit = pipeline::fit_noise(&img).map_err(|e| Failure::about(input, e))?;
+    let fit = pipeline::fit_noise(&img, &settings).map_err(|e| Failure::about(input, e))?;
     // The white estimates in the input's own grey levels, whatever domain the model works in.
     let est = &pipeline::estimate_noise(&img);
     let sigma = pipeline::blind_sigma(est);
@@ -377,10 +397,15 @@ pub fn noise(input: &Path, number: usize, json_out: bool) -> CmdResult {
             );
             if let Some(p) = ch.photon {
                 outln!(
-                    "    gain {:.4} grey levels per photon, offset {:.2}, read noise {:.3}",
+                    "    gain {:.4} grey levels per photon, offset {:.2}, read noise {:.3}{}",
                     p.gain,
                     p.offset,
-                    p.read_noise
+                    p.read_noise,
+                    if p.offset_fitted && p.read_noise_fitted {
+                        " (offset: the darkest smooth level; --offset from a dark frame gives the sensor's read noise)"
+                    } else {
+                        ""
+                    }
                 );
             }
         }

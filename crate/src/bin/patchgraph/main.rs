@@ -51,6 +51,10 @@ enum Command {
         /// Which image of a stack or cube to fit (1 = the first); `inspect` lists them.
         #[arg(long, default_value_t = 1)]
         image: usize,
+        /// Any part of the model known beforehand (e.g. the camera's offset from a dark frame):
+        /// the rest is fitted around it.
+        #[command(flatten)]
+        model: commands::ModelArgs,
         /// Print one JSON object on stdout instead of a text summary.
         #[arg(long)]
         json: bool,
@@ -122,7 +126,7 @@ fn main() -> ExitCode {
     };
     let result = match cli.command {
         Command::Denoise(args) => commands::denoise(args),
-        Command::Noise { input, image, json } => commands::noise(&input, image, json),
+        Command::Noise { input, image, model, json } => commands::noise(&input, image, &model, json),
         Command::Batch { inputs, output, settings, shard, json } => {
             batch::batch(&inputs, &output, settings.as_deref(), shard.as_deref(), json)
         }
