@@ -1,6 +1,6 @@
 // The noise panel: what the fit made of the opened image, so a user can see why the strength was
-// chosen. A plot of the measured (brightness, noise variance) points with the fitted line per
-// channel, the 8 x 8 noise spectrum of each plane as a small picture, and one sentence.
+// chosen. A plot of the measured (brightness, noise variance) points with the fitted line (or the
+// measured curve, where that was used) per channel, the 8 x 8 noise spectrum of each plane as a small picture, and one sentence.
 
 const CHANNEL_COLOURS = [['#444', 'grey'], ['#c0392b', 'red'], ['#2e8b57', 'green'], ['#2c5aa0', 'blue']];
 
@@ -12,7 +12,11 @@ function plotLevels(canvas, fit) {
   const pts = chans.flatMap((f) => f.points);
   if (!pts.length) { ctx.fillStyle = '#444'; ctx.fillText('no smooth areas to measure', pad, H / 2); return; }
   const xMax = Math.max(...pts.map((p) => p.mean)) * 1.05 || 1;
-  const yMax = Math.max(...pts.map((p) => p.variance), ...chans.map((f) => f.slope * xMax + f.intercept)) * 1.1 || 1;
+  // The model each channel was evened out with: its measured curve where that was used (held at
+  // its ends outside the measured span, as the core holds it), else the straight line.
+  const model = fit.channels.map((c) => (c.curve_used ? curveOf(c.level_function) : (x) => c.level_function.slope * x + c.level_function.intercept));
+  const samples = Array.from({ length: 49 }, (_, i) => (i / 48) * xMax);
+  const yMax = Math.max(...pts.map((p) => p.variance), ...model.flatMap((m) => samples.map(m))) * 1.1 || 1;
   const X = (v) => pad + (v / xMax) * (W - pad - 8);
   const Y = (v) => H - pad + 6 - (v / yMax) * (H - pad - 6);
   ctx.strokeStyle = '#888'; ctx.lineWidth = 1;
@@ -25,12 +29,24 @@ function plotLevels(canvas, fit) {
   chans.forEach((f, i) => {
     const [colour] = CHANNEL_COLOURS[chans.length === 1 ? 0 : i + 1] || CHANNEL_COLOURS[0];
     ctx.strokeStyle = colour; ctx.fillStyle = colour; ctx.lineWidth = 1.5;
-    ctx.beginPath(); ctx.moveTo(X(0), Y(Math.max(0, f.intercept))); ctx.lineTo(X(xMax), Y(Math.max(0, f.slope * xMax + f.intercept))); ctx.stroke();
+    ctx.beginPath();
+    samples.forEach((x, j) => (j ? ctx.lineTo : ctx.moveTo).call(ctx, X(x), Y(Math.max(0, model[i](x)))));
+    ctx.stroke();
     for (const p of f.points) {
       ctx.beginPath(); ctx.arc(X(p.mean), Y(p.variance), 3, 0, 2 * Math.PI);
       if (p.used) ctx.fill(); else ctx.stroke();
     }
   });
+}
+
+// The core's curve_variance: the quadratic over [low, high], held at its ends, floored at a tenth
+// of its largest value there.
+export function curveOf(f) {
+  const [c0, c1, c2] = f.curve;
+  const at = (y) => c0 + c1 * y + c2 * y * y;
+  let peak = 0;
+  for (let i = 0; i <= 16; i += 1) peak = Math.max(peak, at(f.low + ((f.high - f.low) * i) / 16));
+  return (y) => Math.max(at(Math.min(Math.max(y, f.low), f.high)), 0.1 * peak, 1e-12);
 }
 
 function drawSpectrum(canvas, spectrum) {

@@ -364,10 +364,17 @@ pub fn noise(input: &Path, number: usize, model: &ModelArgs, json_out: bool) -> 
             .zip(&fit.report.channels)
             .map(|(e, c)| {
                 let f = &c.level_function;
+                // The curve as the core evaluates it, on and a little beyond the measured span.
+                let span = f.high - f.low;
+                let curve_at: Vec<[f64; 2]> = (0..=16)
+                    .map(|i| f.low - 0.1 * span + 1.2 * span * f64::from(i) / 16.0)
+                    .map(|y| [y, f.curve_variance(y)])
+                    .collect();
                 json!({"immerkaer": e.immerkaer, "immerkaer_calm_blocks": e.immerkaer_calm_blocks,
                        "wavelet_mad": e.wavelet_mad, "sigma": e.chosen(),
                        "slope": f.slope, "intercept": f.intercept, "signal_dependent": f.signal_dependent(),
                        "reliable": f.reliable, "spread": f.spread, "clipping": f.clipping, "points": f.points,
+                       "curve": f.curve, "low": f.low, "high": f.high, "curve_used": c.curve_used, "curve_at": curve_at,
                        "photon": c.photon})
             })
             .collect();
