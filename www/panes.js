@@ -376,6 +376,7 @@ export class Pane {
     dl.replaceChildren();
     this.q('.verdict').textContent = '';
     if (!m) { this.app.refreshTable(); return; }
+    const q = this.result.quality;
     const rows = [
       ['Noise model', m.noise_model, ''],
       ['Sigma', this.sigmaText(m), 'the noise level the method removed'],
@@ -386,8 +387,10 @@ export class Pane {
         'whether what was removed follows the image\'s edges: near 0 is good; above 0.15 detail went too'],
       ['Estimated PSNR (no reference)', estimateText(this.result.report.error_estimate),
         'the error against the unknown clean image, from one more pass (Stein\'s unbiased risk estimate); it holds for noise independent from pixel to pixel'],
-      ['PSNR against reference', m.psnr === null ? 'no reference' : `${fmt(m.psnr)} dB`, 'higher is better; +1 dB is 21% less squared error'],
-      ['SSIM against reference', m.ssim === null ? 'no reference' : fmt(m.ssim, 4), 'structural similarity; 1 is identical'],
+      // From the unrounded values: the table's are rounded to 3 places, and rounding twice shows
+      // 34.6146 as 34.62.
+      ['PSNR against reference', q ? `${fmt(q.psnr)} dB` : 'no reference', 'higher is better; +1 dB is 21% less squared error'],
+      ['SSIM against reference', q ? fmt(q.ssim, 4) : 'no reference', 'structural similarity; 1 is identical'],
     ];
     const joined = this.result.report.slices_joined;
     if (joined !== undefined && joined !== null) {
