@@ -157,7 +157,9 @@ def camera_rows(exe, work):
     for name, shot, cp, np_ in camera_items(os.path.join(work, "camera")):
         clean = io.imread(cp)
         noisy = np.asarray(Image.open(np_).convert("RGB"))
-        # The noise's own std: before JPEG, which adds its own error to the image.
+        # The noise's own std: before JPEG, which removes some of it (fine grain) and adds its own
+        # error (on texture). 'In the file' is the std of the decoded JPEG against the reference:
+        # what a blind estimate can see.
         true_std = float(np.std(np.load(np_[:-4] + "-before-jpeg.npy").astype(np.float64) - clean))
         opath = np_[:-4] + "-pg.png"
         rep = run_cli(exe, np_, opath)
@@ -174,7 +176,7 @@ def camera_rows(exe, work):
         best = max((max(v), p) for p, v in peers.items())
         out.append(dict(image=name, noise=f"shot {shot}", input=peak_signal_noise_ratio(clean, noisy, data_range=255),
                         patchgraph=pg, peer=best[0], peer_name=best[1], model=rep["noise_model"]["model"],
-                        true_std=true_std, level=eff))
+                        true_std=true_std, level=eff, in_file=float(np.std(noisy.astype(np.float64) - clean))))
     return out
 
 
@@ -213,7 +215,8 @@ def table(exe, work):
              "|---|---|---|---|---|---|---|---|"]
     for r in cam:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
-                     f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}) |")
+                     f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}; "
+                     f"{r['in_file']:.2f} in the file) |")
     for r in fr:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | gain {r['gain']:.2f} (true {GAIN:g}), read {r['read']:.2f} "
