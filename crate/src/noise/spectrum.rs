@@ -157,29 +157,26 @@ fn consistent_blocks(rows: &[f32], kk: usize) -> Vec<usize> {
             .map(|f| {
                 let mut col: Vec<f64> = kept.iter().map(|&b| f64::from(rows[b * kk + f])).collect();
                 let mean = col.iter().sum::<f64>() / col.len() as f64;
-                col.sort_by(f64::total_cmp);
-                col[col.len() / 2].max(0.01 * mean).max(1e-300)
+                median(&mut col).max(0.01 * mean).max(1e-300)
             })
             .collect();
         let energy =
             |b: usize| -> f64 { (1..kk).map(|f| f64::from(rows[b * kk + f]) / v[f]).sum::<f64>() / (kk as f64 - 1.0) };
-        let mut e: Vec<f64> = kept.iter().map(|&b| energy(b)).collect();
-        let mut sorted = e.clone();
-        sorted.sort_by(f64::total_cmp);
-        let limit = TEXTURE_ENERGY * sorted[sorted.len() / 2];
+        let e: Vec<f64> = kept.iter().map(|&b| energy(b)).collect();
+        let limit = TEXTURE_ENERGY * median(&mut e.clone());
         let before = kept.len();
-        let mut i = 0;
-        kept.retain(|_| {
-            let keep = e[i] <= limit;
-            i += 1;
-            keep
-        });
-        e.clear();
+        kept = kept.iter().zip(&e).filter(|(_, x)| **x <= limit).map(|(b, _)| *b).collect();
         if kept.len() == before {
             break;
         }
     }
     kept
+}
+
+/// The upper median (the element at n / 2 in order), found in linear time; the slice is reordered.
+fn median(v: &mut [f64]) -> f64 {
+    let mid = v.len() / 2;
+    *v.select_nth_unstable_by(mid, f64::total_cmp).1
 }
 
 /// The spectrum of a plane's noise at block side k; None when the image has fewer than 32 blocks.
@@ -230,13 +227,8 @@ pub fn estimate(p: &Plane, k: usize) -> Option<NoiseSpectrum> {
         }
     }
     variances.iter_mut().for_each(|v| *v /= n as f64);
-    let medians: Vec<f64> = (0..kk)
-        .map(|f| {
-            let mut col: Vec<f32> = kept.iter().map(|&b| rows[b * kk + f]).collect();
-            col.sort_by(f32::total_cmp);
-            f64::from(col[n / 2])
-        })
-        .collect();
+    let medians: Vec<f64> =
+        (0..kk).map(|f| median(&mut kept.iter().map(|&b| f64::from(rows[b * kk + f])).collect::<Vec<_>>())).collect();
     let median_ratio = ring_ratio(&medians, k);
     // The DC coefficient holds the blocks' means, not noise: take the separable extension of its
     // neighbours, v(0,0) = v(0,1) v(1,0) / v(1,1), kept between them and twice the larger.
