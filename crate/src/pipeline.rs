@@ -231,7 +231,9 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         None => vec![PlaneNoise { level: sigma, colour_ratio: 1.0, spectrum: None }; working.len()],
     };
     let is_correlated = planes.iter().any(|p| p.spectrum.is_some());
-    let unfit = channels.iter().any(|c| c.level_function.points.iter().filter(|p| p.used).count() < 2);
+    // One white level because the fit could not see a dependence (too few brightness levels),
+    // not because it saw none.
+    let unfit = dependence == Dependence::None && channels.iter().any(|c| !c.level_function.reliable);
     let fallback = (fitting && unfit).then(|| "the fit fell back to one white level".to_string());
     let sentence = if fitting {
         model::explain(dependence, is_correlated, unfit, &channels, &planes)

@@ -297,7 +297,14 @@ pub fn fit(p: &Plane, top: f64) -> NoiseLevelFunction {
         .filter(|b| (!clipping.low() || b.mean > local(b.mean)) && (!clipping.high() || b.mean < top - local(b.mean)))
         .copied()
         .collect();
-    fit_blocks(&kept, clipping, top)
+    let second = fit_blocks(&kept, clipping, top);
+    if second.points.iter().filter(|p| p.used).count() < 2 && first.points.iter().filter(|p| p.used).count() >= 2 {
+        // Nearly every smooth area lies near a limit (a dark micrograph): too little is left to
+        // see a dependence, but the first fit's points, measured on the unclipped side, still show
+        // the level; kept for the report, never trusted for a slope.
+        return NoiseLevelFunction { reliable: false, ..first };
+    }
+    second
 }
 
 fn fit_blocks(blocks: &[BlockStat], clipping: Clipping, top: f64) -> NoiseLevelFunction {
