@@ -83,6 +83,8 @@ struct TileSpectra<'a> {
     /// Per (slice, channel, corner): 1 + the patch's index in `data`, 0 while not transformed.
     slot: std::cell::RefCell<Vec<u32>>,
     data: std::cell::RefCell<Vec<f32>>,
+    /// The patch copied out and the transform's intermediate, reused by every transform.
+    scratch: std::cell::RefCell<(Vec<f32>, Vec<f32>)>,
 }
 
 impl<'a> TileSpectra<'a> {
@@ -94,13 +96,20 @@ impl<'a> TileSpectra<'a> {
             k,
             slot: std::cell::RefCell::new(vec![0; planes.len() * channels * corners]),
             data: std::cell::RefCell::new(Vec::new()),
+            scratch: std::cell::RefCell::new((vec![0.0; k * k], vec![0.0; k * k])),
         }
     }
 
     /// Without the cache, for a look at one group of a whole image (whose corner table would be
     /// as large as the image).
     fn uncached(planes: &'a [Vec<Plane>], k: usize) -> Self {
-        TileSpectra { planes, k, slot: std::cell::RefCell::new(Vec::new()), data: std::cell::RefCell::new(Vec::new()) }
+        TileSpectra {
+            planes,
+            k,
+            slot: std::cell::RefCell::new(Vec::new()),
+            data: std::cell::RefCell::new(Vec::new()),
+            scratch: std::cell::RefCell::new((vec![0.0; k * k], vec![0.0; k * k])),
+        }
     }
 
     /// Writes the DCT of the patch at (x, y) of `slice`'s channel `ch` into `out`.
@@ -110,11 +119,12 @@ impl<'a> TileSpectra<'a> {
         let corners = plane.width * plane.height;
         let at = (slice * self.planes[0].len() + ch) * corners + y * plane.width + x;
         let transform = |out: &mut [f32]| {
-            let (mut buf, mut tmp) = (vec![0.0f32; kk], vec![0.0f32; kk]);
+            let mut scratch = self.scratch.borrow_mut();
+            let (buf, tmp) = &mut *scratch;
             for r in 0..k {
                 buf[r * k..(r + 1) * k].copy_from_slice(&plane.data[(y + r) * plane.width + x..][..k]);
             }
-            dct2(dct, k, &buf, out, &mut tmp);
+            dct2(dct, k, buf, out, tmp);
         };
         let mut slot = self.slot.borrow_mut();
         if slot.is_empty() {
