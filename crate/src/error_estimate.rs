@@ -246,10 +246,12 @@ impl ErrorEstimate {
     pub fn for_estimated_level(mut self) -> Self {
         self.level_estimated = true;
         if self.applies && self.per_sigma_percent_db.is_none_or(|d| d.abs() > MAX_DB_PER_SIGMA_PERCENT) {
-            self.note = Some(format!(
-                "{}the result is so close to the noise level that its PSNR cannot be told without knowing the noise level to better than 1%: give sigma for a PSNR; the error still ranks settings",
-                self.note.as_deref().map(|n| format!("{n} ")).unwrap_or_default()
-            ));
+            let said = "he result is so close to the noise level that its PSNR cannot be told without knowing the noise level to better than 1%: give sigma for a PSNR; the error still ranks settings";
+            // A second sentence after an earlier note (which ends with a full stop) starts with a capital.
+            self.note = Some(match self.note.as_deref() {
+                Some(n) => format!("{n} T{said}."),
+                None => format!("t{said}"),
+            });
             self.psnr = None;
             self.gain_db = None;
             self.psnr_spread = None;
