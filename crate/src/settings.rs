@@ -131,8 +131,18 @@ pub enum GroupGraph {
     NoiseTested,
     /// The SSIM of the patches' coarse structure (version 1's only choice).
     Similarity,
-    /// All weights 1: a fixed basis (the DCT across the group), for comparison.
+    /// All weights 1: a fixed basis (the DCT across the group), for comparison. Its groups are
+    /// the noise-tested graph's, grown where flat, so the two differ only in the basis.
     Uniform,
+}
+
+impl GroupGraph {
+    /// Whether groups may grow where the noise cannot tell candidates apart: a matter of
+    /// grouping, not of the basis, so the fixed basis shares it; version 1's similarity graph
+    /// keeps its fixed group sizes (its files give version 1's results).
+    pub fn grows_flat_groups(self) -> bool {
+        self != GroupGraph::Similarity
+    }
 }
 
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]

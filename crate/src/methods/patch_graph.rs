@@ -229,7 +229,7 @@ fn lf_distance(a: &[f32], b: &[f32], lf: &[usize]) -> f64 {
 }
 
 /// Groups may grow to this multiple of the group size where the noise cannot tell the extra
-/// candidates from the reference (noise-tested group graph only): averaging more of them can
+/// candidates from the reference (the noise-tested and the fixed basis alike): averaging more of them can
 /// only remove noise. On the development set (blind, sigma 10/25/50): +0.09/+0.13/+0.12 dB on
 /// average, up to +0.6 dB on smooth images (where tuned peers led), -0.5 dB at worst on the star
 /// field (still 5 dB ahead of them). Fixed groups of 32 did worse on both counts; growing in
@@ -419,7 +419,7 @@ impl<'a> Stage<'a> {
     /// candidates apart ([`FLAT_GROWTH`]), by half again in a stack, whose neighbouring slices
     /// offer more such candidates ([`Stage::with_slices`]).
     fn match_cap(&self) -> usize {
-        let cap = self.group_size() * if self.prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 };
+        let cap = self.group_size() * if self.prof.group_graph.grows_flat_groups() { FLAT_GROWTH } else { 1 };
         if self.context.is_empty() {
             cap
         } else {
@@ -496,7 +496,7 @@ impl<'a> Stage<'a> {
     fn keep_count(&self, slices: &TileSpectra, group: &Group, noisy: bool) -> usize {
         let base = self.group_size();
         let n = group.len();
-        if n <= base || self.prof.group_graph != GroupGraph::NoiseTested {
+        if n <= base || !self.prof.group_graph.grows_flat_groups() {
             return n.min(base);
         }
         let (_, expected) = tested_expectation(self.lf_var, self.lf.len(), noisy);
@@ -723,7 +723,7 @@ pub fn group_at(
     };
     let rx = nearest(ref_axis(luma.width, k, prof.step), x);
     let ry = nearest(ref_axis(luma.height, k, prof.step), y);
-    let growth = if prof.group_graph == GroupGraph::NoiseTested { FLAT_GROWTH } else { 1 };
+    let growth = if prof.group_graph.grows_flat_groups() { FLAT_GROWTH } else { 1 };
     let mp = MatchParams {
         patch: k,
         search: prof.search,
