@@ -1,59 +1,10 @@
 // One patch-graph run split across the worker pool: a worker prepares the image (noise model,
 // colour transform, sigma, the plan of bands); each band of each stage is a job for any worker,
-// given only its window of rows; the bands' sums are assembled here into rows; a worker turns the
-// final planes into the result. The arithmetic is the same whatever the number of workers, so
+// given only its window of rows; the core's band assembler, in a worker of its own, adds the
+// bands' sums into rows (this file only schedules); a worker turns the final planes into the
+// result. The arithmetic is the same whatever the number of workers, so
 // the result is identical with 1 or 4 of them.
-import { task, poolSize, Stopped } from './tasks.js';
-
-// Reference rows per band: the native run's band height (methods::bands::NATIVE_BAND_ROWS), so
-// page and command line add the same numbers in the same order.
-export const BAND_ROWS = 64;
-
-// Rust's `((num / den) * 1024.0).round() as f32 / 1024.0`: round half away from zero, then to f32.
-function round1024(v) {
-  const q = v * 1024;
-  return Math.fround(q < 0 ? -Math.round(-q) : Math.round(q)) / 1024;
-}
-
-// Mirrors methods::bands::Assembler: rows are written once every band touching them is in.
-class Assembler {
-  constructor(bands, width, height, fallback) {
-    Object.assign(this, { bands, width, height, fallback });
-    this.out = fallback.map(() => new Float32Array(width * height));
-    this.parts = bands.map(() => null);
-    this.received = bands.map(() => false);
-    this.next = 0;
-  }
-
-  add(i, num, den) {
-    const b = this.bands[i];
-    this.parts[i] = { y0: b.y0, y1: b.y1, rows: b.y1 - b.y0, num, den };
-    this.received[i] = true;
-    const pending = this.received.indexOf(false);
-    const limit = pending < 0 ? this.height : this.bands[pending].y0;
-    for (; this.next < limit; this.next += 1) this.writeRow(this.next);
-    this.parts = this.parts.map((p) => (p && p.y1 <= this.next ? null : p));
-  }
-
-  writeRow(y) {
-    const { width: w, out, fallback } = this;
-    const cover = this.parts.filter((p) => p && y >= p.y0 && y < p.y1);
-    for (let x = 0; x < w; x += 1) {
-      let den = 0;
-      for (const p of cover) den += p.den[(y - p.y0) * w + x];
-      for (let c = 0; c < out.length; c += 1) {
-        const i = y * w + x;
-        if (den > 0) {
-          let num = 0;
-          for (const p of cover) num += p.num[c * p.rows * w + (y - p.y0) * w + x];
-          out[c][i] = round1024(num / den);
-        } else {
-          out[c][i] = fallback[c][i];
-        }
-      }
-    }
-  }
-}
+import { task, poolSize, Stopped, ownWorker } from './tasks.js';
 
 // Rows [y0, y1) of every plane (one Float32Array each), end to end: a band's window.
 function windowOf(planes, width, y0, y1) {
@@ -99,6 +50,7 @@ export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
 // then `end(run, prep, planes, bands, peak, t0)`.
 function split(bytes, settings, onProgress, end, probe = false) {
   const jobs = new Set();
+  const assemblers = new Set();
   let stopped = false;
   // Peak wasm memory of a worker doing band jobs, and of one preparing or finishing the whole image.
   const peak = { band: 0, whole: 0 };
@@ -112,17 +64,27 @@ function split(bytes, settings, onProgress, end, probe = false) {
   };
 
   // One stage: bands go out as workers free up (at most a few ahead of the first unfinished band,
-  // which bounds the sums held here), and rows are assembled as they complete.
+  // which bounds the sums the assembler holds), and their sums go to the assembler as they come.
   const stage = (prep, bands, basic, start, span, name) => new Promise((resolve, reject) => {
     const { width, height } = prep;
-    const asm = new Assembler(bands, width, height, prep.planes);
+    const asm = ownWorker();
+    assemblers.add(asm);
+    let failed = false;
+    const fail = (e) => { if (!failed) { failed = true; asm.stop(); assemblers.delete(asm); reject(e); } };
+    const started = asm.call('assemblerStart', { bands: prep.bands, width, height, planes: prep.planes })
+      .then((r) => { peak.whole = Math.max(peak.whole, r.memoryBytes || 0); });
+    started.catch(fail);
+    const received = bands.map(() => false);
+    const adds = [];
     const part = bands.map(() => 0);
     let sent = 0;
     let done = 0;
-    let failed = false;
     const report = () => onProgress(start + span * part.reduce((a, b) => a + b, 0) / bands.length, `${name}: ${done} of ${bands.length} bands`);
+    const finish = () => Promise.all([started, ...adds])
+      .then(() => asm.call('assemblerFinish'))
+      .then((r) => { asm.stop(); assemblers.delete(asm); peak.whole = Math.max(peak.whole, r.memoryBytes || 0); resolve(r.planes); }, fail);
     const send = () => {
-      const first = asm.received.indexOf(false);
+      const first = received.indexOf(false);
       while (!failed && sent < bands.length && sent - done < poolSize && sent <= first + 4 * poolSize) {
         const i = sent;
         const b = bands[i];
@@ -135,10 +97,13 @@ function split(bytes, settings, onProgress, end, probe = false) {
             if (failed) return;
             part[i] = 1;
             done += 1;
-            asm.add(i, r.num, r.den);
+            received[i] = true;
+            const add = asm.call('assemblerAdd', { index: i, num: r.num, den: r.den }, [r.num.buffer, r.den.buffer]);
+            add.catch(fail);
+            adds.push(add);
             report();
-            if (done === bands.length) resolve(asm.out); else send();
-          }, (e) => { if (!failed) { failed = true; reject(e); } });
+            if (done === bands.length) finish(); else send();
+          }, fail);
       }
     };
     send();
@@ -147,7 +112,7 @@ function split(bytes, settings, onProgress, end, probe = false) {
   const promise = (async () => {
     const t0 = performance.now();
     onProgress(0, 'preparing');
-    const prep = await run('prepare', { bytes: bytes.slice(), settings, bandRows: BAND_ROWS, probe });
+    const prep = await run('prepare', { bytes: bytes.slice(), settings, probe });
     const bands = JSON.parse(prep.bands);
     let planes = prep.planes;
     if (bands.length) {
@@ -158,11 +123,13 @@ function split(bytes, settings, onProgress, end, probe = false) {
   })().catch((e) => {
     // One failed job fails the run: its other jobs stop instead of running on for nothing.
     for (const t of jobs) t.stop();
+    for (const a of assemblers) a.stop();
     throw e;
   });
   const stop = () => {
     stopped = true;
     for (const t of jobs) t.stop();
+    for (const a of assemblers) a.stop();
   };
   return { promise, stop };
 }

@@ -15,11 +15,15 @@ export class Stopped extends Error {}
 
 // The one-file page sets globalThis.patchgraphWorkerUrl to a blob: URL of a classic worker; the
 // served page uses the module worker beside this file.
-function newWorker() {
-  alive += 1;
+function makeWorker() {
   if (globalThis.patchgraphWorkerUrl) return new Worker(globalThis.patchgraphWorkerUrl);
   const base = query.get('wasm') === 'baseline';
   return new Worker(new URL(base ? './worker.js?baseline' : './worker.js', import.meta.url), { type: 'module' });
+}
+
+function newWorker() {
+  alive += 1;
+  return makeWorker();
 }
 
 function retire(worker) {
@@ -82,3 +86,37 @@ export function task(kind, payload = {}, onProgress = null, transfer = []) {
 }
 
 export const call = (kind, payload, transfer) => task(kind, payload, null, transfer).promise;
+
+// A worker of its own, outside the pool (not counted in its size), for work that keeps state from one request to the next
+// (a split run's band assembler). Requests run in the order sent. Returns {call, stop}; `call`
+// gives a promise of the reply; `stop` ends the worker and fails what is still waiting.
+export function ownWorker() {
+  const worker = makeWorker();
+  const waiting = [];
+  let ended = false;
+  const fail = (error) => { while (waiting.length) waiting.shift().reject(error); };
+  worker.onmessage = (e) => {
+    const m = e.data;
+    if ('progress' in m) return;
+    const w = waiting.shift();
+    if (w) { if (m.ok) w.resolve(m.r); else w.reject(new Error(m.message)); }
+  };
+  worker.onerror = (e) => {
+    e.preventDefault();
+    fail(new Error(`the computation stopped unexpectedly${e.message ? `: ${e.message}` : ''}`));
+  };
+  const call = (kind, payload = {}, transfer = []) => {
+    if (ended) return Promise.reject(new Stopped('stopped'));
+    return new Promise((resolve, reject) => {
+      waiting.push({ resolve, reject });
+      worker.postMessage({ kind, ...payload }, transfer);
+    });
+  };
+  const stop = () => {
+    if (ended) return;
+    ended = true;
+    worker.terminate();
+    fail(new Stopped('stopped'));
+  };
+  return { call, stop };
+}

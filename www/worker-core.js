@@ -17,6 +17,7 @@ export function installWorker(pg, ready, build) {
     .flatMap((k) => (Array.isArray(r[k]) ? r[k] : [r[k]]))
     .filter((a) => ArrayBuffer.isView(a)).map((a) => a.buffer);
   const progress = (fraction, stage) => self.postMessage({ progress: fraction, stage });
+  let assembler = null;
   self.onmessage = async (event) => {
     const m = event.data;
     try {
@@ -33,7 +34,11 @@ export function installWorker(pg, ready, build) {
         case 'sliceSecond':
           r = pg.sliceSecondStage(m.bytes, m.unit, m.pages, m.units, m.settings, m.basics, MAX_MEGAPIXELS, progress, Boolean(m.estimate));
           break;
-        case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, m.bandRows, Boolean(m.probe)); break;
+        case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, Boolean(m.probe)); break;
+        // A split run's assembler lives in a worker of its own (tasks.js ownWorker), one stage at a time.
+        case 'assemblerStart': assembler = new pg.BandAssembler(m.bands, m.width, m.height, m.planes); r = {}; break;
+        case 'assemblerAdd': assembler.add(m.index, m.num, m.den); r = {}; break;
+        case 'assemblerFinish': r = { planes: assembler.finish() }; assembler = null; break;
         case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, MAX_MEGAPIXELS) }; break;
         case 'band':
           r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, progress);

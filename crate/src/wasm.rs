@@ -7,6 +7,7 @@ use crate::methods::bands::{self, Band};
 use crate::methods::patch_graph::Stage;
 use crate::methods::MethodOutput;
 use crate::noise::spectrum::NoiseSpectrum;
+use crate::patch::aggregate::Accumulator;
 use crate::pipeline::RunOutput;
 use crate::planes::{Image, Plane};
 use crate::run_file::StackImage;
@@ -325,13 +326,7 @@ pub fn slice_second_stage(
 /// is nothing to remove (sigma 0). With `probe`, the planes are the error estimate's second
 /// input (the image plus the probe, under the model fitted on the image).
 #[wasm_bindgen(js_name = prepareRun)]
-pub fn prepare_run(
-    input: &[u8],
-    settings_json: &str,
-    max_megapixels: u32,
-    band_rows: u32,
-    probe: bool,
-) -> Result<JsValue, JsError> {
+pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe: bool) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
@@ -346,7 +341,7 @@ pub fn prepare_run(
     let plan: Vec<Band> = if sigma > 0.0 && !skip {
         let stage = Stage::new(&planes, None, 0, height, sigma, range, &settings.patch_graph, spectra.as_deref())
             .map_err(js_err)?;
-        bands::plan(width, height, &stage.profile(), band_rows as usize)
+        bands::plan(width, height, &stage.profile(), bands::NATIVE_BAND_ROWS)
     } else {
         Vec::new()
     };
@@ -411,6 +406,55 @@ pub fn run_band(
     set(&obj, "num", &Float64Array::from(all.as_slice()).into())?;
     set(&obj, "den", &Float64Array::from(acc.den.as_slice()).into())?;
     Ok(obj.into())
+}
+
+/// The core's band assembler for the page: the page feeds it each band's sums (as [`run_band`]
+/// gives them) in any order, and gets the stage's planes back, added in the same order as the
+/// command line adds them. The page keeps only the scheduling.
+#[wasm_bindgen]
+pub struct BandAssembler {
+    inner: bands::Assembler<'static>,
+    width: usize,
+}
+
+#[wasm_bindgen]
+impl BandAssembler {
+    /// `bands`: the plan as [`prepare_run`] gave it; `planes`: the stage's input planes (an array
+    /// of Float32Arrays of `width` x `height`), kept where no patch lands.
+    #[wasm_bindgen(constructor)]
+    pub fn new(bands: &str, width: u32, height: u32, planes: &Array) -> Result<BandAssembler, JsError> {
+        let plan: Vec<Band> =
+            serde_json::from_str(bands).map_err(|_| JsError::new("the band description is not valid"))?;
+        let (width, height) = (width as usize, height as usize);
+        if plan.iter().any(|b| b.y1 <= b.y0 || b.y1 > height) {
+            return Err(JsError::new("a band lies outside the image"));
+        }
+        let fallback = planes_from(planes, width, height)?;
+        Ok(BandAssembler { inner: bands::Assembler::new(plan, fallback), width })
+    }
+
+    /// Band `index`'s sums: `num` its planes end to end, `den` one plane, over the band's rows.
+    pub fn add(&mut self, index: u32, num: &[f64], den: &[f64]) -> Result<(), JsError> {
+        let band = self.inner.band(index as usize).ok_or_else(|| JsError::new("no such band"))?;
+        let (w, rows, channels) = (self.width, band.y1 - band.y0, self.inner.channels());
+        if den.len() != w * rows || num.len() != channels * w * rows {
+            return Err(JsError::new("a band's sums do not match its size"));
+        }
+        let acc = Accumulator {
+            x0: 0,
+            y0: band.y0,
+            width: w,
+            height: rows,
+            num: num.chunks(w * rows).map(<[f64]>::to_vec).collect(),
+            den: den.to_vec(),
+        };
+        self.inner.add(index as usize, acc).map_err(js_err)
+    }
+
+    /// The assembled planes (an array of Float32Arrays), once every band is in.
+    pub fn finish(self) -> Result<Array, JsError> {
+        Ok(plane_arrays(&self.inner.finish().map_err(js_err)?))
+    }
 }
 
 /// Last step of a split run: the method's output planes (an array of Float32Arrays) back to an

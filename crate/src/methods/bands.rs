@@ -3,16 +3,18 @@
 //! (its window), and its accumulator covers just those rows. Bands partition the references, so
 //! summing their accumulators gives exactly the one-pass sums; rows are final as soon as every
 //! band that touches them is in. Natively this bounds memory; in the page each band is one job
-//! for a worker, and www/stitch.js assembles rows the same way as [`Assembler`] here.
+//! for a worker, and the page feeds the bands' sums to this same [`Assembler`] (through the wasm
+//! face's `BandAssembler`), so page and command line add the same numbers in the same order.
 
 use super::patch_graph::{ref_axis, Profile};
 use crate::error::{Error, Result};
 use crate::patch::aggregate::Accumulator;
 use crate::planes::Plane;
 use serde::{Deserialize, Serialize};
+use std::borrow::Cow;
 
-/// Reference rows per band natively; the page uses the same (www/stitch.js), so both add the same
-/// numbers in the same order and give identical results. One default tile row: a band's few
+/// Reference rows per band, natively and in the page (whose bands the core plans too), so both add
+/// the same numbers in the same order and give identical results. One default tile row: a band's few
 /// open accumulators stay a small fraction of the image, and the page gets many jobs to share.
 pub const NATIVE_BAND_ROWS: usize = 64;
 
@@ -50,32 +52,46 @@ pub fn plan(width: usize, height: usize, prof: &Profile, rows: usize) -> Vec<Ban
 /// Gathers band accumulators in any order and writes each image row once all bands touching it
 /// are in: value = sum over bands (in band order) of numerators / the same of denominators,
 /// rounded to 1/1024 grey level; rows no patch covers keep the input's value.
+/// Natively it borrows the plan and the stage's input; the page's assembler owns them.
 pub struct Assembler<'a> {
-    bands: &'a [Band],
+    bands: Cow<'a, [Band]>,
     parts: Vec<Option<Accumulator>>,
     received: Vec<bool>,
-    fallback: &'a [Plane],
+    fallback: Cow<'a, [Plane]>,
     out: Vec<Plane>,
     next_row: usize,
 }
 
 impl<'a> Assembler<'a> {
     /// `fallback`: the stage's input planes (full image).
-    pub fn new(bands: &'a [Band], fallback: &'a [Plane]) -> Self {
+    pub fn new(bands: impl Into<Cow<'a, [Band]>>, fallback: impl Into<Cow<'a, [Plane]>>) -> Self {
+        let (bands, fallback) = (bands.into(), fallback.into());
         let out = fallback
             .iter()
             .map(|p| Plane { width: p.width, height: p.height, data: vec![0.0; p.data.len()] })
             .collect();
         Assembler {
-            bands,
             parts: vec![None; bands.len()],
             received: vec![false; bands.len()],
+            bands,
             fallback,
             out,
             next_row: 0,
         }
     }
 
+    /// The band `index` of the plan, if there is one.
+    pub fn band(&self, index: usize) -> Option<Band> {
+        self.bands.get(index).copied()
+    }
+
+    /// The number of planes (channels) assembled.
+    pub fn channels(&self) -> usize {
+        self.fallback.len()
+    }
+
+    /// Takes band `index`'s sums (each band once, in any order) and writes every row that is
+    /// now final.
     pub fn add(&mut self, index: usize, acc: Accumulator) -> Result<()> {
         let band = self.bands.get(index).ok_or_else(|| Error::Internal("no such band".into()))?;
         let width = self.fallback.first().map_or(0, |p| p.width);
@@ -91,7 +107,7 @@ impl<'a> Assembler<'a> {
             self.next_row += 1;
         }
         let next = self.next_row;
-        for (part, band) in self.parts.iter_mut().zip(self.bands) {
+        for (part, band) in self.parts.iter_mut().zip(self.bands.iter()) {
             if band.y1 <= next {
                 *part = None;
             }
@@ -126,6 +142,7 @@ impl<'a> Assembler<'a> {
         }
     }
 
+    /// The assembled planes, once every band is in.
     pub fn finish(self) -> Result<Vec<Plane>> {
         if self.received.iter().any(|r| !r) {
             return Err(Error::Internal("a band's result is missing".into()));
