@@ -48,6 +48,11 @@ ensure_browser() {
     $SUDO apt-get update -qq
     DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq chromium chromium-driver >/dev/null
   fi
+  ensure_npm
+}
+
+# The npm packages pinned in package-lock.json: playwright-core, and ESLint for the gate.
+ensure_npm() {
   if [ ! -d node_modules/playwright-core ] || ! cmp -s package-lock.json node_modules/.installed-lock.json; then
     say "installing npm test dependencies"
     npm ci --no-audit --no-fund --loglevel=error

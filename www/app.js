@@ -292,7 +292,7 @@ async function main() {
   const started = await call('defaults');
   app.defaults = JSON.parse(started.settings);
   document.body.dataset.wasm = started.build;
-  let stored = null;
+  let stored;
   try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }
   const second = structuredClone(app.defaults);
   second.method = 'pixel-graph';

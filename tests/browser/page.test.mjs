@@ -35,7 +35,7 @@ async function runPane(i, click = true) {
   } catch (e) {
     const texts = await page.locator('.pane .stage').allTextContents();
     const errs = await page.locator('.pane .error').allTextContents();
-    throw new Error(`pane ${i} did not finish: stages ${JSON.stringify(texts)}, errors ${JSON.stringify(errs)}, console ${JSON.stringify(consoleErrors)}`);
+    throw new Error(`pane ${i} did not finish: stages ${JSON.stringify(texts)}, errors ${JSON.stringify(errs)}, console ${JSON.stringify(consoleErrors)}`, { cause: e });
   }
   assert.match(await stage(i).textContent(), /done/);
 }
