@@ -1,6 +1,8 @@
 //! Typed errors. Each one reads as one plain sentence for the user; `is_user_error` tells the faces
 //! whether the user can fix it (bad input or settings: CLI exit code 2) or it is our fault (exit 1).
 
+use std::fmt;
+use std::sync::Arc;
 use thiserror::Error as ThisError;
 
 pub type Result<T> = std::result::Result<T, Error>;
@@ -12,7 +14,7 @@ pub enum Error {
     #[error("the file is not an image in a supported format (TIFF, FITS, PNG, JPEG or BMP)")]
     UnknownFormat,
     #[error("the image could not be decoded: {0}")]
-    Decode(String),
+    Decode(String, #[source] Option<Cause>),
     #[error("the image has zero width or height")]
     ZeroSize,
     #[error("the image is {width} x {height} pixels, more than the limit of {limit} megapixels")]
@@ -24,7 +26,7 @@ pub enum Error {
     #[error("{0}")]
     UnsupportedOutput(String),
     #[error("the image could not be encoded: {0}")]
-    Encode(String),
+    Encode(String, #[source] Option<Cause>),
     #[error("{name} must be between {min} and {max}, got {got}")]
     OutOfRange { name: &'static str, min: f64, max: f64, got: f64 },
     #[error("{0}")]
@@ -40,8 +42,58 @@ pub enum Error {
 }
 
 impl Error {
+    /// A decoding error of our own wording, with no library error behind it.
+    pub fn decode(message: impl Into<String>) -> Self {
+        Error::Decode(message.into(), None)
+    }
+
+    /// A decoding error whose cause is a library's error, kept as its `source()`.
+    pub fn decode_caused(message: impl Into<String>, cause: impl std::error::Error + Send + Sync + 'static) -> Self {
+        Error::Decode(message.into(), Some(Cause::new(cause)))
+    }
+
+    /// An encoding (or writing) error of our own wording.
+    pub fn encode(message: impl Into<String>) -> Self {
+        Error::Encode(message.into(), None)
+    }
+
+    /// An encoding (or writing) error whose cause is a library's error, kept as its `source()`.
+    pub fn encode_caused(message: impl Into<String>, cause: impl std::error::Error + Send + Sync + 'static) -> Self {
+        Error::Encode(message.into(), Some(Cause::new(cause)))
+    }
+
     /// True when the user can fix the cause (input file, settings); false for our own faults.
     pub fn is_user_error(&self) -> bool {
         !matches!(self, Error::Internal(_) | Error::Cancelled)
+    }
+}
+
+/// A library's error kept as the cause of one of ours. Shared, because errors are cloned between
+/// the faces; two causes are equal when they say the same thing (library errors rarely compare).
+#[derive(Clone, Debug)]
+pub struct Cause(Arc<dyn std::error::Error + Send + Sync>);
+
+impl Cause {
+    /// Keeps `e` as a cause.
+    pub fn new(e: impl std::error::Error + Send + Sync + 'static) -> Self {
+        Cause(Arc::new(e))
+    }
+}
+
+impl fmt::Display for Cause {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        self.0.fmt(f)
+    }
+}
+
+impl std::error::Error for Cause {
+    fn source(&self) -> Option<&(dyn std::error::Error + 'static)> {
+        self.0.source()
+    }
+}
+
+impl PartialEq for Cause {
+    fn eq(&self, other: &Self) -> bool {
+        self.to_string() == other.to_string()
     }
 }

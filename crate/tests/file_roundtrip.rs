@@ -70,7 +70,19 @@ fn empty_and_unknown_inputs_have_their_own_errors() {
     assert_eq!(decode(b"hello, this is text", &DecodeLimits::default()).unwrap_err(), Error::UnknownFormat);
     let mut png = encode(&image(BitDepth::Eight, 1, false), Format::Png).unwrap();
     png.truncate(png.len() / 2);
-    assert!(matches!(decode(&png, &DecodeLimits::default()).unwrap_err(), Error::Decode(_)));
+    let e = decode(&png, &DecodeLimits::default()).unwrap_err();
+    assert!(matches!(e, Error::Decode(..)));
+    // The decoder's own error stays reachable as the cause (std::error::Error::source).
+    assert!(std::error::Error::source(&e).is_some(), "a truncated PNG's error lost its cause: {e}");
+}
+
+#[test]
+fn a_damaged_tiff_keeps_the_decoders_error_as_its_cause() {
+    let mut tif = encode(&image(BitDepth::Sixteen, 1, false), Format::Tiff).unwrap();
+    tif.truncate(tif.len() / 2);
+    let e = decode(&tif, &DecodeLimits::default()).unwrap_err();
+    assert!(matches!(e, Error::Decode(..)), "{e:?}");
+    assert!(std::error::Error::source(&e).is_some(), "a truncated TIFF's error lost its cause: {e}");
 }
 
 /// A document of `pages` pages of stored samples of type `t`, decoded the way a file would be.

@@ -13,7 +13,7 @@ use fitsio_pure::image::ImageData;
 use fitsio_pure::value::Value;
 
 fn fits_err(e: fitsio_pure::Error) -> Error {
-    Error::Decode(format!("FITS: {e}"))
+    Error::decode_caused(format!("FITS: {e}"), e)
 }
 
 /// Cards the writer makes itself from the data's shape.
@@ -29,10 +29,10 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     let fd = fitsio_pure::hdu::parse_fits(bytes).map_err(fits_err)?;
     let hdu = fd.primary();
     let HduInfo::Primary { naxes, .. } = &hdu.info else {
-        return Err(Error::Decode("FITS: the primary HDU is not an image".into()));
+        return Err(Error::decode("FITS: the primary HDU is not an image"));
     };
     if naxes.len() < 2 || naxes.iter().product::<usize>() == 0 {
-        return Err(Error::Decode(format!(
+        return Err(Error::decode(format!(
             "FITS: the primary HDU holds no 2-D image (NAXIS = {}); images in extensions are not read here",
             naxes.len()
         )));
@@ -44,7 +44,7 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     let pages = naxes.get(2).copied().unwrap_or(1);
     limits.check(w, h, pages, 1)?;
     if hdu.data_start + hdu.data_len > bytes.len() {
-        return Err(Error::Decode("FITS: the file ends before the image data (truncated?)".into()));
+        return Err(Error::decode("FITS: the file ends before the image data (truncated?)"));
     }
     let data = fitsio_pure::image::read_image_data(bytes, hdu).map_err(fits_err)?;
     let (bscale, bzero) = fitsio_pure::image::extract_bscale_bzero(&hdu.cards);
@@ -88,7 +88,7 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
 }
 
 fn card(keyword: &str, value: Value, comment: Option<&str>) -> Result<Card> {
-    let mut c = Card::new(keyword, value).map_err(|e| Error::Encode(format!("FITS: {e}")))?;
+    let mut c = Card::new(keyword, value).map_err(|e| Error::encode_caused(format!("FITS: {e}"), e))?;
     c.comment = comment.map(str::to_string);
     Ok(c)
 }
@@ -118,8 +118,8 @@ pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>
         SampleType::F32 => -32,
         SampleType::F64 => -64,
     };
-    let mut cards =
-        fitsio_pure::primary::build_primary_header(bitpix, &axes).map_err(|e| Error::Encode(format!("FITS: {e}")))?;
+    let mut cards = fitsio_pure::primary::build_primary_header(bitpix, &axes)
+        .map_err(|e| Error::encode_caused(format!("FITS: {e}"), e))?;
     let from_fits = doc.format == Format::Fits;
     if from_fits {
         cards.extend(m.fits_cards.iter().cloned());
@@ -142,7 +142,8 @@ pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>
     if let Some(p) = provenance {
         cards.extend(history(&p.sentence()));
     }
-    let header = fitsio_pure::header::serialize_header(&cards).map_err(|e| Error::Encode(format!("FITS: {e}")))?;
+    let header =
+        fitsio_pure::header::serialize_header(&cards).map_err(|e| Error::encode_caused(format!("FITS: {e}"), e))?;
     let blank = m.fits_blank.map(|b| match doc.sample {
         SampleType::U16 => b as f64 + U16_ZERO,
         SampleType::U32 => b as f64 + U32_ZERO,

@@ -12,14 +12,15 @@ use std::io::Cursor;
 fn map_decode_error(e: image::ImageError) -> Error {
     match e {
         image::ImageError::Limits(_) => Error::TooMuchMemory { limit_mib: DecodeLimits::default().max_alloc_mib },
-        image::ImageError::Unsupported(u) => Error::Decode(format!("unsupported content ({u})")),
-        other => Error::Decode(other.to_string()),
+        image::ImageError::Unsupported(u) => Error::decode(format!("unsupported content ({u})")),
+        other => Error::decode_caused(other.to_string(), other),
     }
 }
 
 pub fn decode(bytes: &[u8], format: Format, limits: &DecodeLimits) -> Result<Document> {
-    let reader =
-        ImageReader::new(Cursor::new(bytes)).with_guessed_format().map_err(|e| Error::Decode(e.to_string()))?;
+    let reader = ImageReader::new(Cursor::new(bytes))
+        .with_guessed_format()
+        .map_err(|e| Error::decode_caused(e.to_string(), e))?;
     if reader.format().is_none() {
         return Err(Error::UnknownFormat);
     }
@@ -125,8 +126,8 @@ fn be16(doc: &Document, page: &WorkingPage) -> Vec<u8> {
     }
 }
 
-fn enc_err(e: impl std::fmt::Display) -> Error {
-    Error::Encode(e.to_string())
+fn enc_err(e: impl std::error::Error + Send + Sync + 'static) -> Error {
+    Error::encode_caused(e.to_string(), e)
 }
 
 fn encode_png(doc: &Document, page: &WorkingPage, provenance: Option<&Provenance>) -> Result<Vec<u8>> {

@@ -242,7 +242,7 @@ pub struct WorkingPage {
 pub fn to_working(s: &Samples, w: usize, h: usize, layout: Layout, blank: BlankRule) -> Result<WorkingPage> {
     let n = layout.samples_per_pixel();
     if s.len() != w * h * n {
-        return Err(Error::Decode(format!("a page holds {} samples where {w} x {h} x {n} were expected", s.len())));
+        return Err(Error::decode(format!("a page holds {} samples where {w} x {h} x {n} were expected", s.len())));
     }
     let sample = s.sample_type();
     let colour = layout.colour_channels();

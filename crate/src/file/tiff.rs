@@ -20,9 +20,9 @@ fn tiff_err(page: usize, e: tiff::TiffError) -> Error {
         tiff::TiffError::IoError(ref io) if io.kind() == std::io::ErrorKind::UnexpectedEof => {
             "the file ends before the page's data (truncated?)".to_string()
         }
-        other => other.to_string(),
+        ref other => other.to_string(),
     };
-    Error::Decode(format!("TIFF page {page}: {what}"))
+    Error::decode_caused(format!("TIFF page {page}: {what}"), e)
 }
 
 struct PageHead {
@@ -88,10 +88,10 @@ fn check_chunks(dec: &mut Decoder<Cursor<&[u8]>>, file_len: usize, head: &PageHe
         (Some(o), Some(c)) => (o, c),
         _ => match (vec(dec, Tag::TileOffsets)?, vec(dec, Tag::TileByteCounts)?) {
             (Some(o), Some(c)) => (o, c),
-            _ => return Err(Error::Decode(format!("TIFF page {page}: the page says nowhere where its pixels are"))),
+            _ => return Err(Error::decode(format!("TIFF page {page}: the page says nowhere where its pixels are"))),
         },
     };
-    let bad = |what: String| Err(Error::Decode(format!("TIFF page {page}: {what} (damaged or truncated file?)")));
+    let bad = |what: String| Err(Error::decode(format!("TIFF page {page}: {what} (damaged or truncated file?)")));
     if offsets.len() != counts.len() {
         return bad(format!("{} strip offsets but {} strip sizes", offsets.len(), counts.len()));
     }
@@ -241,7 +241,7 @@ pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
         };
         if let Some(f) = &first {
             if (f.width, f.height, f.layout, f.sample) != (head.width, head.height, head.layout, head.sample) {
-                return Err(Error::Decode(format!(
+                return Err(Error::decode(format!(
                     "TIFF page {page} is {} x {} {} where page 1 is {} x {} {}: pages must match",
                     head.width,
                     head.height,
@@ -334,7 +334,7 @@ fn rational(v: f64) -> Rational {
 }
 
 fn enc_err(e: tiff::TiffError) -> Error {
-    Error::Encode(format!("TIFF: {e}"))
+    Error::encode_caused(format!("TIFF: {e}"), e)
 }
 
 fn write_page<W: Write + Seek, K: TiffKind, C: ColorType>(

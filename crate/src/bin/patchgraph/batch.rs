@@ -97,7 +97,7 @@ struct Computed {
 }
 
 fn compute(input: &Path, settings: &patchgraph::Settings, progress: &dyn Progress) -> Result<Computed, Error> {
-    let bytes = std::fs::read(input).map_err(|e| Error::Decode(format!("cannot read the file ({e})")))?;
+    let bytes = std::fs::read(input).map_err(|e| Error::decode_caused(format!("cannot read the file ({e})"), e))?;
     let doc = file::decode(&bytes, &DecodeLimits::default())?;
     // The input's format, or the first format that holds the whole file (a 16-bit JPEG, say).
     let format = std::iter::once(doc.format)
@@ -117,7 +117,8 @@ fn store(input: &Path, outdir: &Path, done: Computed, written: &[PathBuf]) -> Re
     let stem = input.file_stem().map(|s| s.to_string_lossy().into_owned()).unwrap_or_else(|| "image".into());
     let out = outdir.join(format!("{stem}.{}", format.extension()));
     check_target(&out, input, written)?;
-    write_atomically(&out, &encoded).map_err(|e| Error::Encode(format!("cannot write {} ({e})", out.display())))?;
+    write_atomically(&out, &encoded)
+        .map_err(|e| Error::encode_caused(format!("cannot write {} ({e})", out.display()), e))?;
     Ok(out)
 }
 
