@@ -291,6 +291,7 @@ async function main() {
   wireSweep(app);
   const started = await call('defaults');
   app.defaults = JSON.parse(started.settings);
+  app.fields = started.fields;
   document.body.dataset.wasm = started.build;
   let stored;
   try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }

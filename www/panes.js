@@ -5,51 +5,65 @@ import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 
-// Every form field: how it reads and writes the settings, and its one line of help (shown on
-// hover and listed under "What these settings do").
+// Every form field: how it reads and writes the settings. Numeric fields name their setting
+// (`key`): label, limits and help come from the core's table of settings (settingFields), so a
+// range is written once; the choices carry their help here.
 const fields = {
   method: { get: (s) => s.method, set: (s, v) => { s.method = v; },
     help: 'Patch graph groups similar patches and cleans them together (best quality); pixel graph smooths along a graph of neighbouring pixels that is cut at edges (fast).' },
   noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; },
     help: 'What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.' },
-  'pg-threshold': { get: (s) => s.patch_graph.threshold, set: (s, v) => { s.patch_graph.threshold = +v; },
-    help: 'Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost.' },
-  'pg-patch': { get: (s) => s.patch_graph.patch_size, set: (s, v) => { s.patch_graph.patch_size = +v; },
-    help: 'Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.' },
-  'pg-group': {
-    get: (s) => s.patch_graph.group_size_hard,
-    set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; },
-    help: 'Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.',
-  },
-  'pg-search': { get: (s) => s.patch_graph.search_radius, set: (s, v) => { s.patch_graph.search_radius = +v; },
-    help: 'How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.' },
-  'pg-slices': { get: (s) => s.patch_graph.neighbour_slices, set: (s, v) => { s.patch_graph.neighbour_slices = +v; },
-    help: 'Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.' },
+  'pg-threshold': { key: 'patch_graph.threshold' },
+  'pg-patch': { key: 'patch_graph.patch_size' },
+  // One group size on the page for both stages.
+  'pg-group': { key: 'patch_graph.group_size_hard',
+    set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; } },
+  'pg-search': { key: 'patch_graph.search_radius' },
+  'pg-slices': { key: 'patch_graph.neighbour_slices' },
   'px-graph': { get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
     help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
   'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
     help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
-  'px-strength': { get: (s) => s.pixel_graph.strength, set: (s, v) => { s.pixel_graph.strength = +v; },
-    help: 'Multiplies the smoothing chosen from sigma; 1 is the tuned default.' },
-  'px-cut': { get: (s) => s.pixel_graph.cut_threshold, set: (s, v) => { s.pixel_graph.cut_threshold = +v; },
-    help: 'Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.' },
-  'px-passes': { get: (s) => s.pixel_graph.passes, set: (s, v) => { s.pixel_graph.passes = +v; },
-    help: 'Times the graph is rebuilt from the last result and filtered again.' },
+  'px-strength': { key: 'pixel_graph.strength' },
+  'px-cut': { key: 'pixel_graph.cut_threshold' },
+  'px-passes': { key: 'pixel_graph.passes' },
 };
 
-// Hover help on each field, and the same lines listed in the form's "What these settings do".
-function addHelp(form) {
+// Reading and writing a setting by its dotted key ('patch_graph.threshold').
+const getKey = (s, key) => key.split('.').reduce((o, k) => o[k], s);
+const setKey = (s, key, v) => {
+  const path = key.split('.');
+  const last = path.pop();
+  path.reduce((o, k) => o[k], s)[last] = +v;
+};
+for (const fld of Object.values(fields)) {
+  if (!fld.key) continue;
+  fld.get ||= (s) => getKey(s, fld.key);
+  fld.set ||= (s, v) => setKey(s, fld.key, v);
+}
+
+// Each numeric field's label, limits and help from the core's table; hover help on every field,
+// and the same lines listed in the form's "What these settings do".
+function addHelp(form, table) {
   const list = form.querySelector('.param-help dl');
   for (const [name, fld] of Object.entries(fields)) {
-    const label = form.elements[name].closest('label');
-    label.title = fld.help;
+    const input = form.elements[name];
+    const label = input.closest('label');
+    const info = fld.key && table.find((f) => f.key === fld.key);
+    if (fld.key && !info) throw new Error(`the core describes no setting ${fld.key}`);
+    if (info) {
+      label.prepend(`${info.label} `);
+      Object.assign(input, { min: info.zero_means ? 0 : info.min, max: info.max, step: info.step });
+    }
+    const help = info ? info.help : fld.help;
+    label.title = help;
     const dt = document.createElement('dt');
     dt.textContent = label.firstChild.textContent.trim();
     dt.className = label.closest('.only-patch-graph') ? 'only-patch-graph' : label.closest('.only-pixel-graph') ? 'only-pixel-graph' : '';
     // A field shown only in some cases has its help shown only then.
     for (const only of ['only-stack', 'cut-grid-only']) if (label.classList.contains(only)) dt.classList.add(only);
     const dd = document.createElement('dd');
-    dd.textContent = fld.help;
+    dd.textContent = help;
     dd.className = dt.className;
     list.append(dt, dd);
   }
@@ -130,7 +144,7 @@ export class Pane {
     this.canvas = q('.picture');
     this.overlay = q('.overlay');
     this.viewport = q('.viewport');
-    addHelp(q('.controls'));
+    addHelp(q('.controls'), app.fields);
     this.writeForm();
     q('.controls').addEventListener('input', () => this.readForm());
     q('.controls').addEventListener('submit', (e) => e.preventDefault());

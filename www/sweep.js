@@ -3,17 +3,18 @@
 const $ = (id) => document.getElementById(id);
 const SETTINGS = 4;
 
-// The parameters worth sweeping per method, with the form's limits.
+// The parameters worth sweeping per method, by their settings key; label and limits come from
+// the core's table of settings (app.fields).
 const PARAMETERS = {
   'patch-graph': {
-    threshold: { label: 'Threshold (× sigma)', min: 0, max: 10, set: (s, v) => { s.patch_graph.threshold = v; }, get: (s) => s.patch_graph.threshold },
-    group: { label: 'Group size', min: 1, max: 32, whole: true,
+    threshold: { key: 'patch_graph.threshold', set: (s, v) => { s.patch_graph.threshold = v; }, get: (s) => s.patch_graph.threshold },
+    group: { key: 'patch_graph.group_size_hard',
       set: (s, v) => { s.patch_graph.group_size_hard = v; s.patch_graph.group_size_wiener = v; }, get: (s) => s.patch_graph.group_size_hard },
-    search: { label: 'Search radius', min: 2, max: 24, whole: true, set: (s, v) => { s.patch_graph.search_radius = v; }, get: (s) => s.patch_graph.search_radius },
+    search: { key: 'patch_graph.search_radius', set: (s, v) => { s.patch_graph.search_radius = v; }, get: (s) => s.patch_graph.search_radius },
   },
   'pixel-graph': {
-    strength: { label: 'Strength', min: 0, max: 20, set: (s, v) => { s.pixel_graph.strength = v; }, get: (s) => s.pixel_graph.strength },
-    cut: { label: 'Edge cut (× sigma)', min: 0.1, max: 1000, set: (s, v) => { s.pixel_graph.cut_threshold = v; }, get: (s) => s.pixel_graph.cut_threshold },
+    strength: { key: 'pixel_graph.strength', set: (s, v) => { s.pixel_graph.strength = v; }, get: (s) => s.pixel_graph.strength },
+    cut: { key: 'pixel_graph.cut_threshold', set: (s, v) => { s.pixel_graph.cut_threshold = v; }, get: (s) => s.pixel_graph.cut_threshold },
   },
 };
 
@@ -28,7 +29,11 @@ export function sweepValues(from, to, whole) {
 export function wireSweep(app) {
   const form = $('sweep-form');
   const first = () => app.panes.find((p) => p.name === 'A') || app.panes[0];
-  const params = () => PARAMETERS[first().settings.method];
+  // The method's parameters with the table's label and limits (a step of 1: whole numbers).
+  const params = () => Object.fromEntries(Object.entries(PARAMETERS[first().settings.method]).map(([k, p]) => {
+    const f = app.fields.find((x) => x.key === p.key);
+    return [k, { label: f.label, min: f.min, max: f.max, whole: f.step === 1, ...p }];
+  }));
   const fill = () => {
     const sel = $('sweep-param');
     const keep = sel.value;

@@ -23,6 +23,7 @@ pub mod preview;
 pub mod progress;
 pub mod removed_detail;
 pub mod run_file;
+pub mod setting_fields;
 pub mod settings;
 pub mod stack;
 pub mod synth;

@@ -2,16 +2,21 @@
 //! read by the CLI (`--settings`), and will cross the wasm boundary and be exported by the page.
 
 use crate::error::{Error, Result};
+use crate::setting_fields::check;
 use serde::{Deserialize, Serialize};
 
 /// Bumped when a field changes meaning. Version 1 files (Gaussian noise by default, the photon
 /// model's `poisson_gain` and `poisson_read_noise`) are read and carried over; others are refused.
 pub const SETTINGS_VERSION: u32 = 2;
 
+/// The denoising method. Under the `cli` feature it is also the CLI's `--method` value list.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 #[serde(rename_all = "kebab-case")]
 pub enum Method {
+    /// Fast: a pixel graph cut at intensity edges, filtered in the vertex domain.
     PixelGraph,
+    /// Best quality: groups of similar patches filtered together in a graph transform.
     PatchGraph,
 }
 
@@ -24,15 +29,16 @@ impl Method {
     }
 }
 
-/// What the noise is taken to be.
+/// What the noise is taken to be. Under the `cli` feature it is also the CLI's `--noise` value list.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
+#[cfg_attr(feature = "cli", derive(clap::ValueEnum))]
 #[serde(rename_all = "kebab-case")]
 pub enum NoiseModel {
-    /// Fitted from the image: white or correlated, Gaussian or Poisson-Gaussian, said in the report.
+    /// Fit the noise from the image: white or correlated, Gaussian or photon noise.
     Auto,
-    /// White Gaussian noise of one level (`sigma`).
+    /// White Gaussian noise of one level (--sigma).
     Gaussian,
-    /// Photon noise with Gaussian read noise (`gain`, `offset`, `read_noise`, each fitted when "auto").
+    /// Photon noise with read noise (--gain, --offset, --read-noise; each fitted when not given).
     Poisson,
 }
 
@@ -221,14 +227,6 @@ impl Default for Settings {
     }
 }
 
-fn range(name: &'static str, v: f64, min: f64, max: f64) -> Result<()> {
-    if v.is_finite() && v >= min && v <= max {
-        Ok(())
-    } else {
-        Err(Error::OutOfRange { name, min, max, got: v })
-    }
-}
-
 impl Settings {
     /// Parses JSON; unknown fields and wrong types are refused with serde's own location message.
     /// Version 1 files are carried over to version 2 first (see [`upgrade_v1`]).
@@ -258,37 +256,35 @@ impl Settings {
             )));
         }
         if let Sigma::Value(v) = self.sigma {
-            range("sigma", v, 0.0, 65535.0)?;
+            check("sigma", v)?;
         }
         if let Some(v) = self.gain.value() {
-            range("gain", v, 1e-6, 65535.0)?;
+            check("gain", v)?;
         }
         if let Some(v) = self.offset.value() {
-            range("offset", v, -65535.0, 65535.0)?;
+            check("offset", v)?;
         }
         if let Some(v) = self.read_noise.value() {
-            range("read_noise", v, 0.0, 65535.0)?;
+            check("read_noise", v)?;
         }
         let p = &self.pixel_graph;
-        range("pixel_graph.strength", p.strength, 0.0, 20.0)?;
-        range("pixel_graph.weight_scale", p.weight_scale, 0.05, 20.0)?;
-        range("pixel_graph.cut_threshold", p.cut_threshold, 0.1, 1000.0)?;
-        range("pixel_graph.radius", f64::from(p.radius), 1.0, 3.0)?;
-        range("pixel_graph.patch_radius", f64::from(p.patch_radius), 0.0, 3.0)?;
-        range("pixel_graph.passes", f64::from(p.passes), 1.0, 5.0)?;
-        range("pixel_graph.guide_blur", p.guide_blur, 0.0, 5.0)?;
+        check("pixel_graph.strength", p.strength)?;
+        check("pixel_graph.weight_scale", p.weight_scale)?;
+        check("pixel_graph.cut_threshold", p.cut_threshold)?;
+        check("pixel_graph.radius", f64::from(p.radius))?;
+        check("pixel_graph.patch_radius", f64::from(p.patch_radius))?;
+        check("pixel_graph.passes", f64::from(p.passes))?;
+        check("pixel_graph.guide_blur", p.guide_blur)?;
         let q = &self.patch_graph;
-        if q.patch_size != 0 {
-            range("patch_graph.patch_size", f64::from(q.patch_size), 4.0, 16.0)?;
-        }
-        range("patch_graph.step", f64::from(q.step), 1.0, 8.0)?;
-        range("patch_graph.search_radius", f64::from(q.search_radius), 2.0, 24.0)?;
-        range("patch_graph.group_size_hard", f64::from(q.group_size_hard), 1.0, 32.0)?;
-        range("patch_graph.group_size_wiener", f64::from(q.group_size_wiener), 1.0, 32.0)?;
-        range("patch_graph.threshold", q.threshold, 0.0, 10.0)?;
-        range("patch_graph.min_similarity", q.min_similarity, -1.0, 1.0)?;
-        range("patch_graph.tile_size", f64::from(q.tile_size), 16.0, 4096.0)?;
-        range("patch_graph.neighbour_slices", f64::from(q.neighbour_slices), 0.0, 2.0)?;
+        check("patch_graph.patch_size", f64::from(q.patch_size))?;
+        check("patch_graph.step", f64::from(q.step))?;
+        check("patch_graph.search_radius", f64::from(q.search_radius))?;
+        check("patch_graph.group_size_hard", f64::from(q.group_size_hard))?;
+        check("patch_graph.group_size_wiener", f64::from(q.group_size_wiener))?;
+        check("patch_graph.threshold", q.threshold)?;
+        check("patch_graph.min_similarity", q.min_similarity)?;
+        check("patch_graph.tile_size", f64::from(q.tile_size))?;
+        check("patch_graph.neighbour_slices", f64::from(q.neighbour_slices))?;
         Ok(())
     }
 }

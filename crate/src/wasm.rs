@@ -126,6 +126,13 @@ pub fn default_settings() -> String {
 }
 
 /// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
+/// The table of every numeric setting (key, label, range, step, help; `setting_fields::FIELDS`),
+/// as an array of plain objects: the page builds its fields' limits and help from it.
+#[wasm_bindgen(js_name = settingFields)]
+pub fn setting_fields() -> Result<JsValue, JsError> {
+    serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| JsError::new(&e.to_string()))
+}
+
 #[wasm_bindgen(js_name = checkSettings)]
 pub fn check_settings(json: &str) -> Result<String, JsError> {
     Settings::from_json(json).map(|s| s.to_json()).map_err(js_err)

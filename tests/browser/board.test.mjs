@@ -65,6 +65,13 @@ test('views are offered only where the method has them', async () => {
   assert.ok(help.includes('Edge cut (× sigma)') && !help.includes('Threshold (× sigma)'), help.join(' | '));
   assert.match(await pane(1).locator('input[name=px-cut]').locator('..').getAttribute('title'), /edge/);
   await pane(1).locator('.param-help summary').click();
+  // Labels and limits come from the core's table of settings; the ranges here are the README's
+  // settings table (checked against the core's by a Rust test), 0 being allowed for the patch size.
+  const limits = (name) => pane(0).locator(`input[name=${name}]`).evaluate((e) => [e.min, e.max, e.step]);
+  assert.deepEqual(await limits('pg-search'), ['2', '24', '1']);
+  assert.deepEqual(await limits('pg-patch'), ['0', '16', '1']);
+  assert.deepEqual(await limits('px-cut'), ['0.1', '1000', '0.1']);
+  assert.match(await pane(0).locator('input[name=pg-search]').locator('..').textContent(), /^Search radius/);
   assert.deepEqual(s.consoleErrors, []);
 });
 

@@ -1,7 +1,6 @@
 //! The subcommands: each reads its files, calls the library, and prints text or one JSON object.
 
 use crate::terminal::{write_atomically, TerminalProgress};
-use crate::{MethodArg, NoiseArg};
 use patchgraph::error_estimate::ErrorEstimate;
 use patchgraph::file::{self, DecodeLimits, Document, Format, Provenance};
 use patchgraph::planes::{BitDepth, Image};
@@ -92,7 +91,7 @@ pub fn write_file(path: &Path, bytes: &[u8]) -> CmdResult {
 pub struct ModelArgs {
     /// What the noise is (default: auto, fitted from the image).
     #[arg(long, value_enum)]
-    pub noise: Option<NoiseArg>,
+    pub noise: Option<NoiseModel>,
     /// Photon noise: grey levels per photon, or "auto".
     #[arg(long)]
     pub gain: Option<String>,
@@ -108,11 +107,7 @@ impl ModelArgs {
     /// Writes the options given into the settings.
     fn apply(&self, s: &mut Settings) -> Result<(), Failure> {
         if let Some(n) = self.noise {
-            s.noise = match n {
-                NoiseArg::Auto => NoiseModel::Auto,
-                NoiseArg::Gaussian => NoiseModel::Gaussian,
-                NoiseArg::Poisson => NoiseModel::Poisson,
-            };
+            s.noise = n;
         }
         for (name, text, field) in [
             ("gain", &self.gain, &mut s.gain),
@@ -136,7 +131,7 @@ pub struct DenoiseArgs {
     pub output: PathBuf,
     /// patch-graph (default, best quality) or pixel-graph (fast).
     #[arg(long, value_enum)]
-    pub method: Option<MethodArg>,
+    pub method: Option<Method>,
     /// Noise sigma in the input's grey levels, or "auto" to estimate it.
     #[arg(long, allow_hyphen_values = true)]
     pub sigma: Option<String>,
@@ -200,10 +195,7 @@ fn resolve_settings(a: &DenoiseArgs) -> Result<Settings, Failure> {
         None => Settings::default(),
     };
     if let Some(m) = a.method {
-        s.method = match m {
-            MethodArg::PixelGraph => Method::PixelGraph,
-            MethodArg::PatchGraph => Method::PatchGraph,
-        };
+        s.method = m;
     }
     a.model.apply(&mut s)?;
     if let Some(text) = &a.sigma {

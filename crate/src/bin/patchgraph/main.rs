@@ -11,7 +11,7 @@ mod commands;
 mod sweep;
 mod terminal;
 
-use clap::{Parser, Subcommand, ValueEnum};
+use clap::{Parser, Subcommand};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -20,24 +20,6 @@ use std::process::ExitCode;
 struct Cli {
     #[command(subcommand)]
     command: Command,
-}
-
-#[derive(Clone, Copy, ValueEnum)]
-pub enum MethodArg {
-    /// Fast: a pixel graph cut at intensity edges, filtered in the vertex domain.
-    PixelGraph,
-    /// Best quality: groups of similar patches filtered together in a graph transform.
-    PatchGraph,
-}
-
-#[derive(Clone, Copy, ValueEnum)]
-pub enum NoiseArg {
-    /// Fit the noise from the image: white or correlated, Gaussian or photon noise.
-    Auto,
-    /// White Gaussian noise of one level (--sigma).
-    Gaussian,
-    /// Photon noise with read noise (--gain, --offset, --read-noise; each fitted when not given).
-    Poisson,
 }
 
 #[derive(Subcommand)]

@@ -1,0 +1,127 @@
+//! One table of every numeric setting: its range, step, label and one line of help. Settings
+//! validation ([`crate::Settings::validate`]), the page's form (through the wasm face's
+//! `settingFields`) and the README's settings table (checked by a test) all read it, so a range
+//! is written once.
+
+use crate::error::{Error, Result};
+use crate::settings::Method;
+use serde::Serialize;
+
+/// One numeric setting.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Field {
+    /// Its path in the settings JSON, e.g. `patch_graph.threshold`.
+    pub key: &'static str,
+    /// What the page calls it.
+    pub label: &'static str,
+    /// Smallest and largest value accepted.
+    pub min: f64,
+    /// Largest value accepted.
+    pub max: f64,
+    /// The page's step (1 for whole numbers).
+    pub step: f64,
+    /// Whether 0 is accepted outside the range, with this meaning.
+    pub zero_means: Option<&'static str>,
+    /// The method that uses it (None: every run).
+    pub method: Option<Method>,
+    /// One line of help.
+    pub help: &'static str,
+}
+
+const fn f(key: &'static str, label: &'static str, min: f64, max: f64, step: f64, help: &'static str) -> Field {
+    Field { key, label, min, max, step, zero_means: None, method: None, help }
+}
+
+const fn pg(field: Field) -> Field {
+    Field { method: Some(Method::PatchGraph), ..field }
+}
+
+const fn px(field: Field) -> Field {
+    Field { method: Some(Method::PixelGraph), ..field }
+}
+
+/// Every numeric setting, in the order the page and the README list them.
+pub const FIELDS: &[Field] = &[
+    f("sigma", "Sigma", 0.0, 65535.0, 0.1, "Noise std in the input's grey levels (the file's own units for float data); for photon noise, in the stabilised domain."),
+    f("gain", "Gain", 1e-6, 65535.0, 0.01, "Photon noise: grey levels per photon."),
+    f("offset", "Offset", -65535.0, 65535.0, 1.0, "Photon noise: the black level, the grey level of no light."),
+    f("read_noise", "Read noise", 0.0, 65535.0, 0.1, "Photon noise: the Gaussian read-noise std in grey levels."),
+    pg(Field {
+        zero_means: Some("by noise: 8, or 12 at high noise"),
+        ..f("patch_graph.patch_size", "Patch size (0 = by noise)", 4.0, 16.0, 1.0, "Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.")
+    }),
+    pg(f("patch_graph.step", "Step", 1.0, 8.0, 1.0, "Distance between reference patches; smaller is slower and slightly better.")),
+    pg(f("patch_graph.search_radius", "Search radius", 2.0, 24.0, 1.0, "How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.")),
+    pg(f("patch_graph.group_size_hard", "Group size", 1.0, 32.0, 1.0, "Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.")),
+    pg(f("patch_graph.group_size_wiener", "Group size, second stage", 1.0, 32.0, 1.0, "Most similar patches cleaned together in the second stage.")),
+    pg(f("patch_graph.threshold", "Threshold (× sigma)", 0.0, 10.0, 0.1, "Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost.")),
+    pg(f("patch_graph.min_similarity", "Least similarity", -1.0, 1.0, 0.01, "Patches with a lower SSIM to the reference are not grouped.")),
+    pg(f("patch_graph.tile_size", "Tile size", 16.0, 4096.0, 1.0, "Side of a block of reference patches processed together; results do not depend on it.")),
+    pg(f("patch_graph.neighbour_slices", "Neighbour slices", 0.0, 2.0, 1.0, "Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.")),
+    px(f("pixel_graph.strength", "Strength", 0.0, 20.0, 0.1, "Multiplies the smoothing chosen from sigma; 1 is the tuned default.")),
+    px(f("pixel_graph.weight_scale", "Weight scale (× sigma)", 0.05, 20.0, 0.05, "Edge weight scale as a multiple of sigma.")),
+    px(f("pixel_graph.cut_threshold", "Edge cut (× sigma)", 0.1, 1000.0, 0.1, "Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.")),
+    px(f("pixel_graph.radius", "Neighbour radius", 1.0, 3.0, 1.0, "Neighbour radius of the cut grid (1 = 8 neighbours).")),
+    px(f("pixel_graph.patch_radius", "Patch radius", 0.0, 3.0, 1.0, "Radius of the patch compared to weigh an edge (0 = single pixels).")),
+    px(f("pixel_graph.passes", "Passes", 1.0, 5.0, 1.0, "Times the graph is rebuilt from the last result and filtered again.")),
+    px(f("pixel_graph.guide_blur", "Guide blur", 0.0, 5.0, 0.1, "Gaussian pre-smoothing (pixels) of the first guide.")),
+];
+
+/// The table's entry for `key`.
+pub fn field(key: &str) -> Option<&'static Field> {
+    FIELDS.iter().find(|f| f.key == key)
+}
+
+/// Checks `value` against `key`'s range in the table.
+pub fn check(key: &'static str, value: f64) -> Result<()> {
+    let f = field(key).ok_or_else(|| Error::Internal(format!("no setting {key} in the table")))?;
+    if f.zero_means.is_some() && value == 0.0 {
+        return Ok(());
+    }
+    if !value.is_finite() || value < f.min || value > f.max {
+        return Err(Error::OutOfRange { name: key, min: f.min, max: f.max, got: value });
+    }
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The README's settings table states each numeric setting's range: it must be the table's
+    /// (rows like "| `patch_graph.step` | 1 to 8 | ...").
+    #[test]
+    fn the_readme_states_the_tables_ranges() {
+        let readme = include_str!("../../README.md");
+        for f in FIELDS {
+            // A row may name two settings ("| `patch_graph.group_size_hard` / `group_size_wiener` |").
+            let (prefix, last) = f.key.rsplit_once('.').unwrap_or(("", f.key));
+            let row = readme
+                .lines()
+                .find(|l| {
+                    let cell = l.split(" | ").next().unwrap_or_default();
+                    cell.starts_with(&format!("| `{prefix}")) && cell.contains(&format!("{last}`"))
+                })
+                .unwrap_or_else(|| panic!("README has no row for {}", f.key));
+            let range = row.split(" | ").nth(1).unwrap_or_default();
+            // A tiny positive minimum stands for "more than 0".
+            let want = if f.min > 0.0 && f.min < 1e-3 { "> 0".to_string() } else { format!("{} to {}", f.min, f.max) };
+            assert!(range.contains(&want), "README row for {} says '{range}', the table {want}", f.key);
+            if f.zero_means.is_some() {
+                assert!(range.contains("0, or"), "README row for {} does not say 0 is accepted", f.key);
+            }
+        }
+    }
+
+    #[test]
+    fn every_default_lies_in_its_range() {
+        // Invariant: the defaults pass their own checks.
+        let d = serde_json::to_value(crate::Settings::default()).unwrap();
+        for f in FIELDS {
+            let v = f.key.split('.').try_fold(&d, |v, k| v.get(k)).and_then(|v| v.as_f64());
+            if let Some(v) = v {
+                assert!(check(f.key, v).is_ok(), "default {} = {v}", f.key);
+            }
+        }
+    }
+}
