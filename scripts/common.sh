@@ -59,3 +59,13 @@ ensure_npm() {
     cp package-lock.json node_modules/.installed-lock.json
   fi
 }
+
+# Debian's Slurm and munge for the job-array test (tests/test_slurm.py, tests/slurm/cluster.sh).
+ensure_slurm() {
+  if ! command -v slurmctld >/dev/null 2>&1 || ! command -v munged >/dev/null 2>&1; then
+    say "installing Slurm and munge from Debian's packages"
+    if [ "$(id -u)" = 0 ]; then SUDO=""; else SUDO="sudo"; fi
+    $SUDO apt-get update -qq
+    DEBIAN_FRONTEND=noninteractive $SUDO apt-get install -y -qq slurm-wlm munge >/dev/null
+  fi
+}

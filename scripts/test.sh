@@ -1,11 +1,13 @@
 #!/usr/bin/env bash
 # Installs what the tests need (wasm32 target, pinned wasm-bindgen CLI, Python reference
-# libraries, Debian's Chromium and playwright-core) and runs every test.
+# libraries, Debian's Chromium, Slurm and munge, npm's playwright-core and ESLint) and runs every
+# test.
 source "$(dirname "$0")/common.sh"
 ensure_wasm_target
 bash "$ROOT/scripts/check.sh"
 ensure_python
 ensure_browser
+ensure_slurm
 "$ROOT/scripts/build.sh"
 say "Rust tests (unit, closed forms, invariants, CLI contract)"
 cargo test --release --locked -p patchgraph
