@@ -22,6 +22,7 @@ fn apply(m: &[[f32; 3]; 3], planes: &[Plane]) -> Vec<Plane> {
     out
 }
 
+/// RGB planes to opponent planes (luminance first), the transform of [`OPPONENT`].
 pub fn to_opponent(rgb: &[Plane]) -> Vec<Plane> {
     apply(&OPPONENT, rgb)
 }

@@ -5,38 +5,75 @@ use std::fmt;
 use std::sync::Arc;
 use thiserror::Error as ThisError;
 
+/// The core's result: a value or one of our typed errors.
 pub type Result<T> = std::result::Result<T, Error>;
 
+/// Everything that can go wrong, each with its one-sentence message for the user.
 #[derive(Debug, ThisError, Clone, PartialEq)]
 pub enum Error {
+    /// The input holds no bytes.
     #[error("the file is empty")]
     EmptyInput,
+    /// The bytes are none of the formats we read.
     #[error("the file is not an image in a supported format (TIFF, FITS, PNG, JPEG or BMP)")]
     UnknownFormat,
+    /// A supported format, but damaged, truncated or using a feature we do not read; the
+    /// decoder's own error, when there is one, is the source.
     #[error("the image could not be decoded: {0}")]
     Decode(String, #[source] Option<Cause>),
+    /// The image has no pixels.
     #[error("the image has zero width or height")]
     ZeroSize,
     #[error("the image is {width} x {height} pixels, more than the limit of {limit} megapixels")]
-    TooManyPixels { width: u32, height: u32, limit: u64 },
+    /// More pixels than the face allows (the page's and the CLI's limits differ).
+    TooManyPixels {
+        /// Width in pixels.
+        width: u32,
+        /// Height in pixels.
+        height: u32,
+        /// The limit, in megapixels.
+        limit: u64,
+    },
     #[error("decoding the image would need more than the memory limit of {limit_mib} MiB")]
-    TooMuchMemory { limit_mib: u64 },
+    /// Decoding would allocate more than the decoder's memory limit.
+    TooMuchMemory {
+        /// The limit, in MiB.
+        limit_mib: u64,
+    },
+    /// A pixel type we do not take (e.g. palette or complex samples), named.
     #[error("{0} images are not supported; save as grey or RGB TIFF (any of 8 to 64 bits) first")]
     UnsupportedPixelType(String),
+    /// The output format cannot hold the result (the message says what to choose instead).
     #[error("{0}")]
     UnsupportedOutput(String),
+    /// Writing the result failed; the encoder's or the file system's error is the source.
     #[error("the image could not be encoded: {0}")]
     Encode(String, #[source] Option<Cause>),
     #[error("{name} must be between {min} and {max}, got {got}")]
-    OutOfRange { name: &'static str, min: f64, max: f64, got: f64 },
+    /// A setting outside its range (`setting_fields::FIELDS`).
+    OutOfRange {
+        /// The setting's key.
+        name: &'static str,
+        /// Smallest value accepted.
+        min: f64,
+        /// Largest value accepted.
+        max: f64,
+        /// The value given.
+        got: f64,
+    },
+    /// Settings that cannot be read (JSON, unknown fields, versions, combinations).
     #[error("{0}")]
     BadSettings(String),
+    /// Two images that should match (reference and result) do not.
     #[error("the two images differ in size or channels: {0}")]
     Mismatch(String),
+    /// The image is smaller than the operation needs (e.g. one patch).
     #[error("the image is too small for this operation: {0}")]
     TooSmall(String),
+    /// The user stopped the run.
     #[error("the run was cancelled")]
     Cancelled,
+    /// Our own fault: a broken invariant, reported instead of a panic.
     #[error("internal error: {0}")]
     Internal(String),
 }

@@ -39,6 +39,7 @@ const DB_PER_RELATIVE: f64 = 4.342_944_819_032_518;
 pub struct Probe {
     /// In the image's grey levels.
     pub step: f64,
+    /// Seed of the probe's random signs, fixed so that a run's estimate repeats.
     pub seed: u64,
 }
 
@@ -49,6 +50,7 @@ pub struct Probe {
 const STEP_PER_NOISE: f64 = 0.05;
 
 impl Probe {
+    /// The probe for a prepared run: a step of 0.05 of the mean noise std.
     pub fn for_run(p: &Prepared) -> Probe {
         Probe { step: STEP_PER_NOISE * p.noise.mean_level.max(1e-6), seed: 0x0005_3055_e57e }
     }
@@ -131,6 +133,7 @@ pub struct PixelVariance {
 }
 
 impl PixelVariance {
+    /// The per-pixel noise variance of a prepared run; `top` is the image's largest sample value.
     pub fn of(p: &Prepared, top: f64) -> Self {
         PixelVariance { sigma: p.sigma, stabilisers: p.stabilisers.clone(), top }
     }
@@ -192,10 +195,12 @@ pub struct ErrorEstimate {
     pub covered: f64,
     /// True when the noise level was estimated, not given: the PSNR then depends on it.
     pub level_estimated: bool,
+    /// The peak value the PSNR is taken against.
     pub range: f64,
 }
 
 impl ErrorEstimate {
+    /// No estimate, with the reason why (`note`).
     pub fn none(note: String, range: f64) -> Self {
         ErrorEstimate {
             applies: false,

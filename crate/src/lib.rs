@@ -7,6 +7,8 @@
 // The house rule made a check: nothing a user controls may panic, so the shipped code holds no
 // unwrap or expect (tests may).
 #![cfg_attr(not(test), deny(clippy::unwrap_used, clippy::expect_used))]
+// Every public item says what it is: the library is read by the faces and by newcomers.
+#![deny(missing_docs)]
 
 pub mod color;
 pub mod error;

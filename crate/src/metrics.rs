@@ -8,19 +8,25 @@ use crate::error::{Error, Result};
 use crate::planes::{Image, Plane};
 use serde::Serialize;
 
+/// PSNR and SSIM of one channel.
 #[derive(Clone, Debug, Serialize, PartialEq)]
 pub struct ChannelQuality {
+    /// Peak signal-to-noise ratio, dB.
     pub psnr: f64,
+    /// Mean structural similarity (Wang et al. 2004 settings).
     pub ssim: f64,
 }
 
+/// PSNR and SSIM per channel of a result against a reference.
 #[derive(Clone, Debug, Serialize, PartialEq)]
 pub struct Quality {
     /// Over all colour channels (MSE pooled before the logarithm).
     pub psnr: f64,
     /// Mean of the per-channel SSIM values.
     pub ssim: f64,
+    /// The peak value the PSNR and SSIM are taken against.
     pub data_range: f64,
+    /// One entry per channel.
     pub channels: Vec<ChannelQuality>,
 }
 
@@ -37,6 +43,7 @@ fn psnr_from_mse(mse: f64, range: f64) -> f64 {
     }
 }
 
+/// PSNR (dB) of `b` against `a` for peak value `range`; infinite when they are equal.
 pub fn psnr(a: &Plane, b: &Plane, range: f64) -> f64 {
     psnr_from_mse(mse(a, b), range)
 }
@@ -72,6 +79,9 @@ fn filter_valid(src: &[f64], w: usize, h: usize, taps: &[f64; 11]) -> Vec<f64> {
     out
 }
 
+/// Mean SSIM of `b` against `a` for peak value `range`: Gaussian window of sigma 1.5 (11 taps),
+/// K1 0.01, K2 0.03, the valid interior only (Wang et al. 2004; scikit-image's gaussian_weights).
+/// Images under 11 x 11 pixels are refused.
 pub fn ssim(a: &Plane, b: &Plane, range: f64) -> Result<f64> {
     let (w, h) = (a.width, a.height);
     if w < 11 || h < 11 {
@@ -141,6 +151,7 @@ pub fn compare(reference: &Image, test: &Image) -> Result<Quality> {
 /// no correlation between neighbours and no relation to the image's edges.
 #[derive(Clone, Debug, Serialize, PartialEq)]
 pub struct ResidualStats {
+    /// Standard deviation of the residual, in grey levels.
     pub std: f64,
     /// std / sigma: well below 1 means noise left in, above 1 means signal taken out.
     pub std_over_sigma: f64,

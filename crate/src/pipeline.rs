@@ -19,8 +19,10 @@ use crate::settings::{Method, NoiseModel, Settings, Sigma};
 use serde::Serialize;
 use std::borrow::Cow;
 
+/// What a run did: method, noise model and level, residual checks, optional error estimate.
 #[derive(Clone, Debug, Serialize)]
 pub struct RunReport {
+    /// The method's name.
     pub method: &'static str,
     /// The model the settings asked for ("auto" lets the fit choose; see `noise`).
     pub noise_model: NoiseModel,
@@ -30,11 +32,14 @@ pub struct RunReport {
     pub stabilised: bool,
     /// Sigma the method used, in the working domain (grey levels; the stabilised domain for Poisson).
     pub sigma_used: f64,
+    /// True when sigma was estimated from the image, not given.
     pub sigma_was_estimated: bool,
     /// Per input colour channel.
     pub noise_estimates: Vec<NoiseEstimate>,
     /// Per input colour channel, in the working domain.
     pub residual: Vec<ResidualStats>,
+    /// Solver iterations or polynomial order summed over channels and passes (pixel graph; 0
+    /// otherwise).
     pub work_units: usize,
     /// The result's error estimated without a reference, when asked for ([`denoise_estimated`]).
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -44,9 +49,13 @@ pub struct RunReport {
     pub slices_joined: Option<usize>,
 }
 
+/// A run's result: the image, its report and, for the pixel graph, its cut map.
 pub struct RunOutput {
+    /// The denoised image, in the input's bit depth and channels.
     pub image: Image,
+    /// What the run did.
     pub report: RunReport,
+    /// The pixel graph's cut map (fraction of cut edges per pixel), when the method has one.
     pub cut_map: Option<Plane>,
 }
 
@@ -74,11 +83,17 @@ pub struct Prepared<'a> {
     pub stabilisers: Option<Vec<Stabiliser>>,
     /// Per input channel, when the image is clipped at black or white and not stabilised.
     pub clip: Option<Vec<ClipInverse>>,
+    /// The planes the methods work on (stabilised or clip-corrected where needed).
     pub working: Cow<'a, [Plane]>,
+    /// The peak value of the working planes.
     pub range: f64,
+    /// The noise std in the working domain.
     pub sigma: f64,
+    /// True when sigma was estimated, not given.
     pub estimated: bool,
+    /// The noise estimate per input channel.
     pub estimates: Vec<NoiseEstimate>,
+    /// The noise model used, fitted or given, with its reasons.
     pub noise: NoiseReport,
 }
 
@@ -154,6 +169,8 @@ fn mean_level(img: &Image, channels: &[ChannelNoise], dependence: Dependence, pl
     (working_var * s / n.max(1) as f64).sqrt()
 }
 
+/// Validates the settings and prepares a run: the noise model (fitted or given), the
+/// stabilising or clip-correcting transform, the working planes and sigma.
 pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> {
     settings.validate()?;
     let top = f64::from(img.max_value());
@@ -284,7 +301,9 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
 /// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
 /// or not), for reports and the page.
 pub struct NoiseFit {
+    /// The fitted model, with its reasons.
     pub report: NoiseReport,
+    /// The 8 x 8 noise spectrum of each method plane; None where the noise is white.
     pub spectra_8: Vec<Option<NoiseSpectrum>>,
 }
 
@@ -319,6 +338,8 @@ pub fn run_method(
     }
 }
 
+/// Denoises an image with the settings: prepare, the method, finish (inverse transforms, residual
+/// checks). Progress is reported and cancellation honoured through `progress`.
 pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Result<RunOutput> {
     let prepared = prepare(img, settings)?;
     let planes_in = method_planes(&prepared);

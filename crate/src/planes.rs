@@ -1,18 +1,24 @@
 //! The in-memory image: f32 planes in the input's own grey levels (0-255 or 0-65535), plus the
 //! untouched alpha samples and the facts the encoder needs to write the same kind of file back.
 
+/// One channel of an image as f32 samples, row by row.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Plane {
+    /// Width in pixels.
     pub width: usize,
+    /// Height in pixels.
     pub height: usize,
+    /// width x height samples, row by row.
     pub data: Vec<f32>,
 }
 
 impl Plane {
+    /// A plane of zeros.
     pub fn new(width: usize, height: usize) -> Self {
         Plane { width, height, data: vec![0.0; width * height] }
     }
 
+    /// A plane whose sample at (x, y) is f(x, y).
     pub fn from_fn(width: usize, height: usize, mut f: impl FnMut(usize, usize) -> f32) -> Self {
         let mut data = Vec::with_capacity(width * height);
         for y in 0..height {
@@ -23,15 +29,18 @@ impl Plane {
         Plane { width, height, data }
     }
 
+    /// The sample at (x, y).
     #[inline]
     pub fn get(&self, x: usize, y: usize) -> f32 {
         self.data[y * self.width + x]
     }
 
+    /// The number of samples.
     pub fn len(&self) -> usize {
         self.data.len()
     }
 
+    /// Whether the plane holds no samples.
     pub fn is_empty(&self) -> bool {
         self.data.is_empty()
     }
@@ -52,9 +61,12 @@ pub fn mirror(i: isize, n: usize) -> usize {
     m as usize
 }
 
+/// Bits per sample of a working image.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
 pub enum BitDepth {
+    /// 8 bits (0 to 255).
     Eight,
+    /// 16 bits (0 to 65535).
     Sixteen,
 }
 
@@ -66,6 +78,7 @@ impl BitDepth {
             BitDepth::Sixteen => 65535.0,
         }
     }
+    /// 8 or 16.
     pub fn bits(self) -> u32 {
         match self {
             BitDepth::Eight => 8,
@@ -77,24 +90,33 @@ impl BitDepth {
 /// Alpha samples exactly as decoded; they pass through every run untouched.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Alpha {
+    /// 8-bit alpha samples.
     Eight(Vec<u8>),
+    /// 16-bit alpha samples.
     Sixteen(Vec<u16>),
 }
 
+/// A working image: grey or RGB planes in their integer scale, and any alpha kept aside.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Image {
+    /// Width in pixels.
     pub width: usize,
+    /// Height in pixels.
     pub height: usize,
+    /// The integer scale of the planes.
     pub depth: BitDepth,
     /// One plane for grey, three for RGB; values in grey levels of `depth`.
     pub channels: Vec<Plane>,
+    /// The alpha channel, carried through untouched.
     pub alpha: Option<Alpha>,
 }
 
 impl Image {
+    /// The largest sample value of the bit depth (255 or 65535).
     pub fn max_value(&self) -> f32 {
         self.depth.max_value()
     }
+    /// Whether the image has three colour planes.
     pub fn is_color(&self) -> bool {
         self.channels.len() == 3
     }

@@ -21,8 +21,11 @@ impl Progress for NoProgress {
 
 /// Maps the progress of one step onto its share [start, start + span] of the whole run.
 pub struct SubProgress<'a> {
+    /// The progress this one reports into.
     pub parent: &'a dyn Progress,
+    /// Where this part starts in the parent's 0 to 1.
     pub start: f32,
+    /// How much of the parent's 0 to 1 this part covers.
     pub span: f32,
 }
 
@@ -38,9 +41,13 @@ impl Progress for SubProgress<'_> {
 /// A share [start, start + span] of the parent's run whose stages carry a label ("page 2 of 5:
 /// matching", "error estimate: matching"); an empty label leaves them as they are.
 pub struct Labelled<'a> {
+    /// The progress this one reports into.
     pub parent: &'a dyn Progress,
+    /// Where this part starts in the parent's 0 to 1.
     pub start: f32,
+    /// How much of the parent's 0 to 1 this part covers.
     pub span: f32,
+    /// Put before each stage name.
     pub label: String,
 }
 

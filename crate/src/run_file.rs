@@ -12,7 +12,9 @@ use crate::progress::{Labelled, Progress};
 use crate::settings::{AutoOr, Settings};
 use crate::stack;
 
+/// A whole file denoised: the document with every unit's result, and one report per unit.
 pub struct FileRun {
+    /// The input document with the results in place of its units.
     pub document: Document,
     /// One per unit ([`Document::unit`]).
     pub reports: Vec<RunReport>,
@@ -131,10 +133,15 @@ fn in_own_scale(run: &mut RunOutput, base: ValueMap, own: ValueMap, estimate_err
 /// gives them), worked on alone: a page worker's jobs, decoding only the pages they read.
 #[derive(Clone, Copy)]
 pub struct StackImage<'a> {
+    /// The file's bytes.
     pub bytes: &'a [u8],
+    /// The decoder's limits.
     pub limits: DecodeLimits,
+    /// Which image of the stack.
     pub image: usize,
+    /// Pages in the file.
     pub pages: usize,
+    /// Images (units) in the file.
     pub units: usize,
 }
 

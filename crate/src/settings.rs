@@ -21,6 +21,7 @@ pub enum Method {
 }
 
 impl Method {
+    /// The method's name in settings files and on the command line.
     pub fn name(self) -> &'static str {
         match self {
             Method::PixelGraph => "pixel-graph",
@@ -46,20 +47,25 @@ pub enum NoiseModel {
 #[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(untagged)]
 pub enum AutoOr {
+    /// A number in the input's grey levels.
     Value(f64),
+    /// The word "auto".
     Auto(AutoWord),
 }
 
 /// The noise level: "auto" or a number.
 pub type Sigma = AutoOr;
 
+/// The one word that stands for "fitted from the image".
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum AutoWord {
+    /// "auto".
     Auto,
 }
 
 impl AutoOr {
+    /// The value "auto".
     pub const AUTO: AutoOr = AutoOr::Auto(AutoWord::Auto);
 
     /// The number given, if any.
@@ -71,6 +77,7 @@ impl AutoOr {
     }
 }
 
+/// The low-pass filter of the pixel-graph method.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "kebab-case")]
 pub enum GraphFilter {
@@ -90,11 +97,13 @@ pub enum PixelGraphKind {
     NonLocal,
 }
 
+/// Settings of the pixel-graph method (ranges in `setting_fields::FIELDS`).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PixelGraphSettings {
     /// Which pixels the graph joins.
     pub graph: PixelGraphKind,
+    /// Tikhonov (solver) or heat kernel (polynomial).
     pub filter: GraphFilter,
     /// Multiplies the smoothing amount chosen from sigma (gamma or t): 1 is the tuned default.
     pub strength: f64,
@@ -151,6 +160,7 @@ impl GroupGraph {
     }
 }
 
+/// Settings of the patch-graph method (ranges in `setting_fields::FIELDS`).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct PatchGraphSettings {
@@ -194,12 +204,17 @@ impl Default for PatchGraphSettings {
     }
 }
 
+/// Everything a run needs besides the image; JSON in settings files (version 2).
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct Settings {
+    /// The settings format's version (2; version 1 files are carried over).
     pub version: u32,
+    /// The denoising method.
     pub method: Method,
+    /// The noise std, or "auto".
     pub sigma: Sigma,
+    /// What the noise is taken to be.
     pub noise: NoiseModel,
     /// Grey levels per photon (photon noise); "auto" fits it from the image.
     pub gain: AutoOr,
@@ -207,7 +222,9 @@ pub struct Settings {
     pub offset: AutoOr,
     /// Gaussian read-noise std (grey levels) on top of the photon noise; "auto" fits it.
     pub read_noise: AutoOr,
+    /// The pixel-graph method's settings.
     pub pixel_graph: PixelGraphSettings,
+    /// The patch-graph method's settings.
     pub patch_graph: PatchGraphSettings,
 }
 
@@ -244,10 +261,12 @@ impl Settings {
         Ok(s)
     }
 
+    /// The settings as pretty JSON, as settings files are written.
     pub fn to_json(&self) -> String {
         serde_json::to_string_pretty(self).unwrap_or_default()
     }
 
+    /// Checks every range (`setting_fields`) and the version.
     pub fn validate(&self) -> Result<()> {
         if self.version != SETTINGS_VERSION {
             return Err(Error::BadSettings(format!(

@@ -2,13 +2,16 @@
 //! and the benchmarks' own scenes. SplitMix64 (G. Steele, D. Lea and C. Flood, OOPSLA 2014):
 //! tiny, seedable, and good enough for noise fields.
 
+/// A SplitMix64 generator.
 pub struct Rng(u64);
 
 impl Rng {
+    /// A generator started from `seed`.
     pub fn new(seed: u64) -> Self {
         Rng(seed)
     }
 
+    /// The next 64 random bits.
     pub fn next_u64(&mut self) -> u64 {
         self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
         let mut z = self.0;
@@ -29,6 +32,7 @@ impl Rng {
         (-2.0 * u1.ln()).sqrt() * (2.0 * std::f64::consts::PI * u2).cos()
     }
 
+    /// Uniform in [lo, hi).
     pub fn range(&mut self, lo: f64, hi: f64) -> f64 {
         lo + (hi - lo) * self.uniform()
     }

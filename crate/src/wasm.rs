@@ -114,6 +114,7 @@ const PIXEL_GRAPH_MAX_PIXELS: usize = 16_000_000;
 /// Largest image whose removed-detail map the page draws (7 f32 planes: 450 MB at 16 MP).
 const DETAIL_MAP_MAX_PIXELS: usize = 16_000_000;
 
+/// Runs when the module loads: a panic, should one happen, reaches the console with its message.
 #[wasm_bindgen(start)]
 pub fn start() {
     console_error_panic_hook::set_once();
@@ -125,7 +126,6 @@ pub fn default_settings() -> String {
     Settings::default().to_json()
 }
 
-/// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
 /// The table of every numeric setting (key, label, range, step, help; `setting_fields::FIELDS`),
 /// as an array of plain objects: the page builds its fields' limits and help from it.
 #[wasm_bindgen(js_name = settingFields)]
@@ -133,6 +133,7 @@ pub fn setting_fields() -> Result<JsValue, JsError> {
     serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| JsError::new(&e.to_string()))
 }
 
+/// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
 #[wasm_bindgen(js_name = checkSettings)]
 pub fn check_settings(json: &str) -> Result<String, JsError> {
     Settings::from_json(json).map(|s| s.to_json()).map_err(js_err)

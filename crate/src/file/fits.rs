@@ -25,6 +25,7 @@ fn structural(keyword: &str) -> bool {
 const U16_ZERO: f64 = 32768.0;
 const U32_ZERO: f64 = 2147483648.0;
 
+/// Reads a FITS file's primary image (2-D, or 3-D as pages), BZERO/BSCALE and BLANK applied.
 pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     let fd = fitsio_pure::hdu::parse_fits(bytes).map_err(fits_err)?;
     let hdu = fd.primary();
@@ -101,6 +102,8 @@ fn history(text: &str) -> Vec<Card> {
         .collect()
 }
 
+/// Writes a FITS file of the document's pages with their header cards and the run recorded
+/// in HISTORY.
 pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>> {
     let (w, h, n) = (doc.width(), doc.height(), doc.pages.len());
     let m = &doc.meta;

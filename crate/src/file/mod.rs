@@ -49,32 +49,45 @@ impl DecodeLimits {
     }
 }
 
+/// An image file format.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Format {
+    /// PNG (8 or 16 bits).
     Png,
+    /// TIFF and BigTIFF (any sample type, many pages).
     Tiff,
+    /// FITS (integer and float images, cubes as pages).
     Fits,
+    /// JPEG (read; results are written as PNG).
     Jpeg,
+    /// BMP (read; results are written as PNG).
     Bmp,
 }
 
 /// What one format reads, writes and keeps: the one place the faces and the README ask.
 pub struct FormatInfo {
+    /// The format described.
     pub format: Format,
+    /// Its name in messages.
     pub name: &'static str,
+    /// File name extensions, lower case, without the dot.
     pub extensions: &'static [&'static str],
     /// Sample types written (every one listed is also read).
     pub samples: &'static [SampleType],
+    /// Whether it holds several pages (a stack).
     pub pages: bool,
+    /// Whether it holds an alpha channel.
     pub alpha: bool,
     /// Independent channels other than grey and RGB.
     pub bands: bool,
+    /// What of the input it carries to the output, in words (for the README and help).
     pub keeps: &'static str,
 }
 
 use SampleType::*;
 
+/// The table of formats: what each reads, writes and keeps.
 pub const FORMATS: &[FormatInfo] = &[
     FormatInfo {
         format: Format::Tiff,
@@ -129,6 +142,7 @@ pub const FORMATS: &[FormatInfo] = &[
 ];
 
 impl Format {
+    /// The format's entry in [`FORMATS`].
     pub fn info(self) -> &'static FormatInfo {
         FORMATS.iter().find(|f| f.format == self).unwrap_or(&FORMATS[0])
     }
@@ -164,11 +178,15 @@ impl Format {
     }
 }
 
+/// The unit of a stated resolution.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum ResolutionUnit {
+    /// No unit (an aspect ratio only).
     None,
+    /// Pixels per inch.
     Inch,
+    /// Pixels per centimetre.
     Centimetre,
     /// PNG's pHYs unit.
     Metre,
@@ -190,8 +208,11 @@ impl Resolution {
 /// Pixel density as the file states it.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct Resolution {
+    /// Horizontal density.
     pub x: f64,
+    /// Vertical density.
     pub y: f64,
+    /// Its unit.
     pub unit: ResolutionUnit,
 }
 
@@ -199,18 +220,25 @@ pub struct Resolution {
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Compression {
+    /// Uncompressed.
     #[default]
     None,
+    /// LZW.
     Lzw,
+    /// Deflate (zlib).
     Deflate,
 }
 
 /// What a file says besides its pixels. Every field is carried to outputs that can hold it.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct Metadata {
+    /// Pixel density, if stated.
     pub resolution: Option<Resolution>,
+    /// TIFF ImageDescription, if any.
     pub description: Option<String>,
+    /// The ICC colour profile, if any.
     pub icc_profile: Option<Vec<u8>>,
+    /// Exif data, if any.
     pub exif: Option<Vec<u8>>,
     /// PNG text chunks (keyword, text).
     pub text: Vec<(String, String)>,
@@ -222,7 +250,9 @@ pub struct Metadata {
     pub fits_axes: Vec<usize>,
     /// FITS extensions after the primary HDU, copied byte for byte.
     pub fits_extensions: Vec<u8>,
+    /// The TIFF input's compression, used again on output.
     pub compression: Compression,
+    /// Whether the TIFF input was BigTIFF (kept on output).
     pub big_tiff: bool,
     /// TIFF Software as read (ours records the run there).
     pub software: Option<String>,
@@ -231,33 +261,47 @@ pub struct Metadata {
 /// A whole file: pages of one sample type and layout, each a working image.
 #[derive(Clone)]
 pub struct Document {
+    /// The file's format.
     pub format: Format,
+    /// The stored sample type.
     pub sample: SampleType,
+    /// How samples are laid out per pixel.
     pub layout: Layout,
+    /// The pages as working images.
     pub pages: Vec<WorkingPage>,
+    /// Everything else the file says.
     pub meta: Metadata,
 }
 
 /// What a file holds, in a form the faces print or send.
 #[derive(Clone, Debug, Serialize)]
 pub struct Summary {
+    /// The file's format.
     pub format: Format,
+    /// The stored sample type.
     pub sample: SampleType,
+    /// How samples are laid out per pixel.
     pub layout: Layout,
+    /// Width in pixels.
     pub width: usize,
+    /// Height in pixels.
     pub height: usize,
+    /// Pages in the file.
     pub pages: usize,
     /// Images denoised one by one: pages times independent channels.
     pub units: usize,
+    /// Pixels that carry no data (NaN, infinities, FITS BLANK), over all pages.
     pub blank_pixels: usize,
     /// The first image's map from working grey levels to stored values.
     pub map: ValueMap,
 }
 
 impl Document {
+    /// Width of the pages in pixels.
     pub fn width(&self) -> usize {
         self.pages.first().map_or(0, |p| p.image.width)
     }
+    /// Height of the pages in pixels.
     pub fn height(&self) -> usize {
         self.pages.first().map_or(0, |p| p.image.height)
     }
@@ -364,6 +408,7 @@ impl Document {
         }
         parts.join(", ")
     }
+    /// What the file holds, for the faces.
     pub fn summary(&self) -> Summary {
         Summary {
             format: self.format,
@@ -459,7 +504,9 @@ pub fn decode_unit(bytes: &[u8], limits: &DecodeLimits, k: usize) -> Result<Docu
 /// What a written file records about its making: the program, its version, and the settings.
 #[derive(Clone, Debug)]
 pub struct Provenance {
+    /// The program and its version.
     pub software: String,
+    /// The settings of the run, as JSON.
     pub settings_json: String,
 }
 

@@ -17,6 +17,7 @@ fn map_decode_error(e: image::ImageError) -> Error {
     }
 }
 
+/// Reads a PNG, JPEG or BMP file (through the image crate) as a one-page document.
 pub fn decode(bytes: &[u8], format: Format, limits: &DecodeLimits) -> Result<Document> {
     let reader = ImageReader::new(Cursor::new(bytes))
         .with_guessed_format()
@@ -170,6 +171,8 @@ fn encode_png(doc: &Document, page: &WorkingPage, provenance: Option<&Provenance
     Ok(out)
 }
 
+/// Writes the document's first page as PNG (8 or 16 bits, the run recorded in a text chunk),
+/// JPEG (quality 95, ICC, Exif and comments kept) or BMP.
 pub fn encode(doc: &Document, format: Format, provenance: Option<&Provenance>) -> Result<Vec<u8>> {
     let page = doc.pages.first().ok_or(Error::ZeroSize)?;
     if format == Format::Png {

@@ -6,15 +6,23 @@ use crate::planes::{Alpha, BitDepth, Image, Plane};
 use crate::synth::Rng;
 use serde::Serialize;
 
+/// The type of a file's stored samples.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum SampleType {
+    /// 8-bit unsigned integers.
     U8,
+    /// 16-bit unsigned integers.
     U16,
+    /// 16-bit signed integers.
     I16,
+    /// 32-bit unsigned integers.
     U32,
+    /// 32-bit signed integers.
     I32,
+    /// 32-bit floats.
     F32,
+    /// 64-bit floats.
     F64,
 }
 
@@ -31,6 +39,7 @@ impl SampleType {
             SampleType::F64 => "64-bit float",
         }
     }
+    /// Whether the samples are floating point.
     pub fn is_float(self) -> bool {
         matches!(self, SampleType::F32 | SampleType::F64)
     }
@@ -59,11 +68,14 @@ impl SampleType {
 /// the data allow, so that untouched samples come back bit for bit.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct ValueMap {
+    /// The stored value of working value 0.
     pub offset: f64,
+    /// Stored units per working unit.
     pub scale: f64,
 }
 
 impl ValueMap {
+    /// Stored equals working.
     pub const IDENTITY: ValueMap = ValueMap { offset: 0.0, scale: 1.0 };
 
     /// The map for data of `sample` type whose valid samples span [lo, hi].
@@ -90,9 +102,11 @@ impl ValueMap {
             }
         }
     }
+    /// A stored sample to its working value.
     pub fn to_working(&self, stored: f64) -> f32 {
         ((stored - self.offset) / self.scale) as f32
     }
+    /// A working value back to its stored sample (before rounding to the type).
     pub fn to_stored(&self, working: f32) -> f64 {
         f64::from(working) * self.scale + self.offset
     }
@@ -101,12 +115,19 @@ impl ValueMap {
 /// One page's samples as stored: interleaved, `channels` per pixel.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Samples {
+    /// 8-bit unsigned samples.
     U8(Vec<u8>),
+    /// 16-bit unsigned samples.
     U16(Vec<u16>),
+    /// 16-bit signed samples.
     I16(Vec<i16>),
+    /// 32-bit unsigned samples.
     U32(Vec<u32>),
+    /// 32-bit signed samples.
     I32(Vec<i32>),
+    /// 32-bit float samples.
     F32(Vec<f32>),
+    /// 64-bit float samples.
     F64(Vec<f64>),
 }
 
@@ -125,6 +146,7 @@ macro_rules! each {
 }
 
 impl Samples {
+    /// The type of the samples.
     pub fn sample_type(&self) -> SampleType {
         match self {
             Samples::U8(_) => SampleType::U8,
@@ -136,12 +158,15 @@ impl Samples {
             Samples::F64(_) => SampleType::F64,
         }
     }
+    /// The number of samples.
     pub fn len(&self) -> usize {
         each!(self, v => v.len())
     }
+    /// Whether there are none.
     pub fn is_empty(&self) -> bool {
         self.len() == 0
     }
+    /// Sample i as f64.
     #[inline]
     #[allow(clippy::unnecessary_cast)] // the macro casts every sample type, f64 among them
     pub fn get(&self, i: usize) -> f64 {
@@ -167,10 +192,12 @@ impl Samples {
 /// Which stored samples carry no data: non-finite floats, or an integer marker (FITS BLANK).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct BlankRule {
+    /// An integer value that marks a blank pixel (FITS BLANK), if any.
     pub marker: Option<f64>,
 }
 
 impl BlankRule {
+    /// Whether stored value v carries no data.
     #[inline]
     pub fn is_blank(&self, v: f64) -> bool {
         !v.is_finite() || self.marker == Some(v)
@@ -181,15 +208,20 @@ impl BlankRule {
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Layout {
+    /// One grey sample per pixel.
     Grey,
+    /// Grey and alpha.
     GreyAlpha,
+    /// Red, green and blue.
     Rgb,
+    /// Red, green, blue and alpha.
     Rgba,
     /// Independent channels (fluorescence channels, spectral bands), each denoised on its own.
     Bands(usize),
 }
 
 impl Layout {
+    /// Samples stored per pixel.
     pub fn samples_per_pixel(self) -> usize {
         match self {
             Layout::Grey => 1,
@@ -199,6 +231,7 @@ impl Layout {
             Layout::Bands(n) => n,
         }
     }
+    /// Whether the last sample of each pixel is alpha.
     pub fn has_alpha(self) -> bool {
         matches!(self, Layout::GreyAlpha | Layout::Rgba)
     }
@@ -230,8 +263,11 @@ pub fn valid_range(s: &Samples, layout: Layout, blank: BlankRule) -> Option<(f64
 /// reads back to the same working values.
 #[derive(Clone, Debug)]
 pub struct WorkingPage {
+    /// The working image (8- or 16-bit-like planes; alpha aside).
     pub image: Image,
+    /// Per colour channel, the indices of its blank pixels (filled in the working image).
     pub blanks: Vec<Vec<u32>>,
+    /// Per colour channel, the map from working values to stored ones.
     pub maps: Vec<ValueMap>,
 }
 

@@ -225,6 +225,7 @@ fn unsupported_model(page: usize) -> Error {
     ))
 }
 
+/// Reads every page of a TIFF (or BigTIFF) file, any sample type, with its tags.
 pub fn decode(bytes: &[u8], limits: &DecodeLimits) -> Result<Document> {
     let (mut dec, meta) = open(bytes, limits)?;
     let mut pages: Vec<WorkingPage> = Vec::new();
@@ -441,6 +442,8 @@ fn write_all<W: Write + Seek, K: TiffKind>(
 /// Classic TIFF addresses at most 4 GiB; larger files, and BigTIFF inputs, are written as BigTIFF.
 const CLASSIC_LIMIT: u64 = (1 << 32) - (1 << 24);
 
+/// Writes every page of the document as TIFF in its sample type and compression, with its tags
+/// and the run recorded in Software.
 pub fn encode(doc: &Document, provenance: Option<&Provenance>) -> Result<Vec<u8>> {
     let bytes_per_sample: u64 = match doc.sample {
         SampleType::U8 => 1,

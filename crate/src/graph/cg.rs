@@ -5,10 +5,12 @@ use super::LinearOperator;
 use crate::error::Result;
 use crate::progress::{check, Progress};
 
+/// Stopping rules of the conjugate-gradient solver.
 #[derive(Clone, Copy, Debug)]
 pub struct CgOptions {
     /// Stop when ||r|| <= tolerance * ||b||.
     pub tolerance: f64,
+    /// Stop after this many iterations whatever the residual.
     pub max_iterations: usize,
 }
 
@@ -18,9 +20,12 @@ impl Default for CgOptions {
     }
 }
 
+/// How a solve ended.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct CgReport {
+    /// Iterations taken.
     pub iterations: usize,
+    /// ||r|| / ||b|| at the end.
     pub relative_residual: f64,
 }
 

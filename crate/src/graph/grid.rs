@@ -12,6 +12,7 @@ use super::LinearOperator;
 use crate::planes::{box_mean, Plane};
 use sprs::CsMat;
 
+/// How the pixel graph is built from its guide image.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct GridParams {
     /// Neighbour radius (1 = 8 neighbours, 2 = 24 neighbours).
@@ -31,13 +32,17 @@ pub struct GridParams {
     pub keep_nearest: usize,
 }
 
+/// A pixel graph on the image grid: each edge's weight per neighbour offset.
 pub struct GridGraph {
+    /// Width in pixels.
     pub width: usize,
+    /// Height in pixels.
     pub height: usize,
     /// Half of the neighbourhood: each undirected edge is stored once, at its first pixel.
     pub offsets: Vec<(isize, isize)>,
     /// weights[k][i]: weight of the edge from pixel i to pixel i + offsets[k] (0 if absent or cut).
     pub weights: Vec<Vec<f32>>,
+    /// Sum of the weights of each pixel's edges.
     pub degree: Vec<f64>,
     /// Per pixel, how many of its edges were cut (for the cut map).
     pub cuts: Vec<u8>,
@@ -58,6 +63,7 @@ pub fn half_offsets(radius: usize) -> Vec<(isize, isize)> {
 }
 
 impl GridGraph {
+    /// Builds the graph from the guide image (the noisy image, or the last pass's result).
     pub fn build(guide: &Plane, p: &GridParams) -> GridGraph {
         let (w, h) = (guide.width, guide.height);
         let offsets = half_offsets(p.radius);
@@ -178,6 +184,7 @@ impl GridGraph {
         }
     }
 
+    /// The graph's weight matrix as a symmetric sparse CSR matrix (sprs).
     pub fn to_csr(&self) -> CsMat<f64> {
         let mut edges = Vec::new();
         self.for_each_edge(|i, j, w| edges.push((i, j, w)));

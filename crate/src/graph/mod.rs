@@ -9,6 +9,7 @@ pub mod laplacian;
 
 /// A symmetric linear operator on vectors of length `dim()`: a Laplacian, or I + gamma L.
 pub trait LinearOperator {
+    /// The length of the vectors it acts on.
     fn dim(&self) -> usize;
     /// y = A x (y is overwritten).
     fn apply(&self, x: &[f64], y: &mut [f64]);
@@ -20,7 +21,9 @@ pub trait LinearOperator {
 
 /// I + gamma A, the matrix of Tikhonov (graph Laplacian) regularisation.
 pub struct Shifted<'a, A: LinearOperator + ?Sized> {
+    /// The operator A.
     pub op: &'a A,
+    /// The regularisation weight gamma.
     pub gamma: f64,
 }
 

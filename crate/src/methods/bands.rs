@@ -22,9 +22,13 @@ pub const NATIVE_BAND_ROWS: usize = 64;
 /// where their patches land.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize, Deserialize)]
 pub struct Band {
+    /// First reference row (corner) of the band.
     pub ref_y0: usize,
+    /// One past its last reference row.
     pub ref_y1: usize,
+    /// First image row its references read or write.
     pub y0: usize,
+    /// One past the last such row.
     pub y1: usize,
 }
 

@@ -10,6 +10,7 @@ use crate::planes::Plane;
 /// What a method returns besides the planes: data the faces can show.
 #[derive(Clone, Debug, Default)]
 pub struct MethodOutput {
+    /// The method's output planes, in the working domain.
     pub planes: Vec<Plane>,
     /// Fraction of cut edges per pixel, from the last graph built (pixel-graph method).
     pub cut_map: Option<Plane>,

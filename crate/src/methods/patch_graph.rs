@@ -26,15 +26,25 @@ use crate::synth::exp_same_everywhere;
 /// Parameters of one run after the noise-dependent profile is applied.
 #[derive(Clone, Copy, Debug)]
 pub struct Profile {
+    /// Patch side in pixels.
     pub patch: usize,
+    /// Distance between reference patches.
     pub step: usize,
+    /// Half-size of the search window.
     pub search: usize,
+    /// Group size of the first (hard-threshold) stage.
     pub group1: usize,
+    /// Group size of the second (Wiener) stage.
     pub group2: usize,
+    /// Hard threshold, in noise stds.
     pub lambda: f64,
+    /// Least SSIM to the reference for a candidate to be grouped.
     pub min_similarity: f64,
+    /// Kaiser window shape parameter of the aggregation.
     pub beta: f64,
+    /// Side of a tile of references processed together.
     pub tile: usize,
+    /// How the graph across a group is weighted.
     pub group_graph: GroupGraph,
 }
 
@@ -403,6 +413,7 @@ impl<'a> Stage<'a> {
         Ok(self)
     }
 
+    /// The profile this stage runs with.
     pub fn profile(&self) -> Profile {
         self.prof
     }
@@ -679,6 +690,8 @@ pub fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
     assembler.finish()
 }
 
+/// The patch-graph method on whole planes: both stages over bands of rows (natively in parallel),
+/// `spectra` giving each plane's noise spectrum where the noise is correlated.
 pub fn denoise(
     planes: &[Plane],
     sigma: f64,

@@ -26,6 +26,8 @@ const P_TIKHONOV: f64 = -0.3;
 /// tried at each level).
 const NONLOCAL_AMOUNT: f64 = 2.6;
 
+/// The filter's amount (Tikhonov gamma or heat time t) for a noise std `sigma8` on the 8-bit
+/// scale, times the user's `strength`.
 pub fn smoothing_amount(filter: GraphFilter, graph: PixelGraphKind, sigma8: f64, strength: f64) -> f64 {
     let rel = (sigma8 / 25.0).max(0.0);
     let base = match graph {
@@ -42,6 +44,8 @@ pub fn smoothing_amount(filter: GraphFilter, graph: PixelGraphKind, sigma8: f64,
 /// the noise; tighter solves cost iterations without changing the rounded output measurably.
 const CG: cg::CgOptions = cg::CgOptions { tolerance: 1e-3, max_iterations: 500 };
 
+/// The pixel-graph method: builds the graph from a guide, filters each plane in the vertex
+/// domain (Tikhonov by preconditioned CG, or the Chebyshev heat kernel), `passes` times.
 pub fn denoise(
     planes: &[Plane],
     sigma: f64,

@@ -54,6 +54,7 @@ pub struct ClipInverse {
 }
 
 impl ClipInverse {
+    /// The inverse for noise of std `sigma` on data clipped at 0 (`low`) and/or at `top` (`high`).
     pub fn new(sigma: f64, top: f64, low: bool, high: bool) -> Self {
         let table = (0..=STEPS).map(|i| clipped_mean(T_MIN + (T_MAX - T_MIN) * i as f64 / STEPS as f64)).collect();
         ClipInverse { sigma, top, low, high, table }

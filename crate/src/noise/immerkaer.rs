@@ -36,6 +36,7 @@ fn responses(p: &Plane) -> Vec<f64> {
     out
 }
 
+/// Immerkaer's fast noise std over the whole plane (Laplacian-difference mask; 0 under 3 x 3).
 pub fn sigma(p: &Plane) -> f64 {
     if p.width < 3 || p.height < 3 {
         return 0.0;
@@ -47,7 +48,9 @@ pub fn sigma(p: &Plane) -> f64 {
 /// Per 16 x 16 block of the interior: the mean grey level of its pixels and the mean |I * M|.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct BlockStat {
+    /// Mean grey level of the block's pixels.
     pub mean: f64,
+    /// Mean |I * M| over the block.
     pub response: f64,
 }
 
@@ -72,9 +75,11 @@ pub struct Clipping {
 const CLIP_SHARE: f64 = 0.002;
 
 impl Clipping {
+    /// Whether the noise was clipped at 0.
     pub fn low(&self) -> bool {
         self.low_share > CLIP_SHARE
     }
+    /// Whether the noise was clipped at the top of the range.
     pub fn high(&self) -> bool {
         self.high_share > CLIP_SHARE
     }

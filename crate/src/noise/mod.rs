@@ -19,6 +19,7 @@ pub struct NoiseEstimate {
     /// Immerkaer on the calmest 16 x 16 blocks (lower quartile), blocks whose noise was clipped
     /// at a limit of the range left out: the one the denoisers use.
     pub immerkaer_calm_blocks: f64,
+    /// The wavelet estimate: median |finest diagonal detail| / 0.6745, as scikit-image's estimate_sigma.
     pub wavelet_mad: f64,
 }
 

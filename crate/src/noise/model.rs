@@ -12,15 +12,22 @@ use serde::Serialize;
 /// The photon model's parameters of one channel, in its grey levels, and whether each was fitted.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct PhotonFit {
+    /// Grey levels per photon.
     pub gain: f64,
+    /// Black level: the grey level of no light.
     pub offset: f64,
+    /// Gaussian read-noise std, in grey levels.
     pub read_noise: f64,
+    /// True when the gain was fitted, false when given.
     pub gain_fitted: bool,
+    /// True when the offset was fitted, false when given.
     pub offset_fitted: bool,
+    /// True when the read noise was fitted, false when given.
     pub read_noise_fitted: bool,
 }
 
 impl PhotonFit {
+    /// The parameters as the transform takes them.
     pub fn noise(&self) -> PhotonNoise {
         PhotonNoise { gain: self.gain, read: self.read_noise, offset: self.offset }
     }
@@ -42,7 +49,9 @@ pub enum Dependence {
 /// parameters.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct ChannelNoise {
+    /// The measured variance against brightness, with its fitted line and curve.
     pub level_function: NoiseLevelFunction,
+    /// The photon model's parameters, when photon noise is used.
     pub photon: Option<PhotonFit>,
     /// True when this channel was stabilised with its measured curve.
     pub curve_used: bool,
@@ -54,6 +63,7 @@ pub struct ChannelNoise {
 pub struct PlaneNoise {
     /// Effective (pixel-domain) noise std in the working domain.
     pub level: f64,
+    /// The spectrum's low/high ring ratio (1 for white noise).
     pub colour_ratio: f64,
     /// Per-coefficient variances when the noise is correlated; None for white noise.
     pub spectrum: Option<NoiseSpectrum>,
@@ -68,7 +78,9 @@ pub struct NoiseReport {
     pub fitted: bool,
     /// One plain sentence: what was chosen and why.
     pub sentence: String,
+    /// One entry per input channel.
     pub channels: Vec<ChannelNoise>,
+    /// One entry per plane the method works on.
     pub planes: Vec<PlaneNoise>,
     /// Set when the fit could not be trusted and the white estimate was used instead.
     pub fallback: Option<String>,

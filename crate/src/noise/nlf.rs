@@ -18,8 +18,11 @@ use serde::Serialize;
 /// One intensity bin: the median block mean, the calm noise variance, and the blocks in it.
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct LevelPoint {
+    /// Median block mean of the bin (grey level).
     pub mean: f64,
+    /// Calm noise variance of the bin.
     pub variance: f64,
+    /// Blocks in the bin.
     pub blocks: usize,
     /// False where the robust fit set the point aside (texture left in the calm quartile).
     pub used: bool,
@@ -28,14 +31,19 @@ pub struct LevelPoint {
 /// var(y) = slope * y + intercept over [low, high], with the points it was fitted to.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct NoiseLevelFunction {
+    /// Slope of the line (gain, for photon noise).
     pub slope: f64,
+    /// Intercept of the line at grey level 0.
     pub intercept: f64,
     /// Intensity span of the points used.
     pub low: f64,
+    /// Upper end of the intensity span.
     pub high: f64,
+    /// The binned points, used or set aside.
     pub points: Vec<LevelPoint>,
     /// Root mean square relative deviation of the used points from the line.
     pub spread: f64,
+    /// Which ends of the range clipped the noise.
     pub clipping: Clipping,
     /// Enough points over enough of the range to trust the slope.
     pub reliable: bool,
@@ -60,6 +68,7 @@ pub const DEPENDENCE_RATIO: f64 = 1.6;
 pub const CURVE_RATIO: f64 = 2.5;
 
 impl NoiseLevelFunction {
+    /// The line's variance at grey level y (never below 0).
     pub fn variance(&self, y: f64) -> f64 {
         (self.slope * y + self.intercept).max(0.0)
     }

@@ -16,6 +16,7 @@ use crate::patch::transform::{dct2, dct_matrix};
 use crate::planes::{gaussian_blur, Plane};
 use serde::{Deserialize, Serialize};
 
+/// The noise's power per coefficient of a k x k DCT: white noise has them all equal.
 #[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct NoiseSpectrum {
     /// Block side: the spectrum has k x k entries, row-major (vertical frequency first).
@@ -53,6 +54,7 @@ const TEXTURE_ENERGY: f64 = 5.5;
 const MAX_BLOCKS: usize = 40_000;
 
 impl NoiseSpectrum {
+    /// White noise of `variance` in every coefficient.
     pub fn white(k: usize, variance: f64) -> Self {
         NoiseSpectrum { k, variances: vec![variance; k * k], blocks: 0, median_ratio: 1.0 }
     }
@@ -67,6 +69,8 @@ impl NoiseSpectrum {
         ring_ratio(&self.variances, self.k)
     }
 
+    /// Whether the noise is correlated enough to filter as such (both ring ratios above
+    /// [`COLOURED_RATIO`]).
     pub fn is_coloured(&self) -> bool {
         self.colour_ratio() > COLOURED_RATIO && self.median_ratio > COLOURED_RATIO
     }

@@ -11,6 +11,7 @@
 /// sqrt(3/2); the forward transform of 0 counts is 2 sqrt(3/8) = sqrt(3/2).
 const SQRT_3_2: f64 = 1.224_744_871_391_589;
 
+/// Poisson-Gaussian noise of a camera: gain x Poisson(photons) + offset + N(0, read^2).
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct PhotonNoise {
     /// Grey levels per photon.
@@ -27,10 +28,13 @@ impl PhotonNoise {
         (self.read / self.gain).powi(2)
     }
 
+    /// The generalised Anscombe transform: noise of about unit variance.
     pub fn forward(&self, x: f64) -> f64 {
         2.0 * ((x - self.offset) / self.gain + 0.375 + self.read_counts()).max(0.0).sqrt()
     }
 
+    /// Its unbiased inverse: the Makitalo-Foi closed form ([`anscombe_inverse`]) in photons, back to
+    /// grey levels.
     pub fn inverse(&self, d: f64) -> f64 {
         self.gain * (anscombe_inverse(d) - self.read_counts()).max(0.0) + self.offset
     }
@@ -50,6 +54,7 @@ pub struct CurveVst {
 const CURVE_STEPS: usize = 4096;
 
 impl CurveVst {
+    /// The transform of the curve `variance` over [0, `top`].
     pub fn new(top: f64, variance: impl Fn(f64) -> f64) -> Self {
         let step = top.max(1e-9) / CURVE_STEPS as f64;
         let mut table = Vec::with_capacity(CURVE_STEPS + 1);
@@ -89,7 +94,9 @@ impl CurveVst {
 /// brightness-dependent noise by its measured curve.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Stabiliser {
+    /// Photon noise, by the generalised Anscombe transform.
     Photon(PhotonNoise),
+    /// Any other brightness dependence, by its measured curve.
     Curve(CurveVst),
     /// Noise of one level per channel but different levels across colour channels: each channel
     /// multiplied by this factor so all carry the same level before the colour transform mixes them.
@@ -97,6 +104,7 @@ pub enum Stabiliser {
 }
 
 impl Stabiliser {
+    /// The forward transform of one sample.
     pub fn forward(&self, y: f64) -> f64 {
         match self {
             Stabiliser::Photon(p) => p.forward(y),
@@ -104,6 +112,7 @@ impl Stabiliser {
             Stabiliser::Scale(k) => y * k,
         }
     }
+    /// The inverse transform of one sample.
     pub fn inverse(&self, d: f64) -> f64 {
         match self {
             Stabiliser::Photon(p) => p.inverse(d),

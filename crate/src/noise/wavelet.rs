@@ -37,6 +37,7 @@ pub fn hh_band(p: &Plane) -> (usize, usize, Vec<f64>) {
     (bw, bh, band)
 }
 
+/// The median (mean of the middle two for an even count; 0 for none); reorders `values`.
 pub fn median(values: &mut [f64]) -> f64 {
     if values.is_empty() {
         return 0.0;
@@ -52,6 +53,8 @@ pub fn median(values: &mut [f64]) -> f64 {
     }
 }
 
+/// Donoho and Johnstone's noise std: median |finest diagonal Daubechies-2 band| / 0.6745
+/// (0 under 2 x 2).
 pub fn sigma_mad(p: &Plane) -> f64 {
     if p.width < 2 || p.height < 2 {
         return 0.0;

@@ -33,15 +33,22 @@ pub fn kaiser_window(k: usize, beta: f64) -> Vec<f32> {
 /// so that summing tiles in any grouping agrees to far below a grey level's thousandth.
 #[derive(Clone, Debug)]
 pub struct Accumulator {
+    /// Left column of the rectangle in the image.
     pub x0: usize,
+    /// Top row of the rectangle in the image.
     pub y0: usize,
+    /// Width of the rectangle.
     pub width: usize,
+    /// Height of the rectangle.
     pub height: usize,
+    /// Weighted sums of patch values, one plane per channel, row by row.
     pub num: Vec<Vec<f64>>,
+    /// Sums of the weights, row by row.
     pub den: Vec<f64>,
 }
 
 impl Accumulator {
+    /// Zero sums over a rectangle, for `channels` channels.
     pub fn new(x0: usize, y0: usize, width: usize, height: usize, channels: usize) -> Self {
         Accumulator {
             x0,

@@ -14,11 +14,14 @@ use crate::error::Result;
 use crate::planes::Plane;
 use crate::progress::{check, Progress};
 
+/// How block matching forms groups.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct MatchParams {
+    /// Patch side in pixels.
     pub patch: usize,
     /// Half-size of the search window, in pixels.
     pub search: usize,
+    /// Most patches per group, the reference included.
     pub max_group: usize,
     /// Candidates below this SSIM are not grouped.
     pub min_similarity: f64,

@@ -11,15 +11,20 @@ pub mod transform;
 /// matching looked at one plane only, i.e. all 0).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Group {
+    /// Top-left corners, the reference first.
     pub positions: Vec<(usize, usize)>,
+    /// SSIM of each patch to the reference.
     pub similarity: Vec<f32>,
+    /// Which plane each patch lies in (empty: all the reference's).
     pub slices: Vec<u8>,
 }
 
 impl Group {
+    /// Patches in the group.
     pub fn len(&self) -> usize {
         self.positions.len()
     }
+    /// Whether the group holds no patch.
     pub fn is_empty(&self) -> bool {
         self.positions.is_empty()
     }
