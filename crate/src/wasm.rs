@@ -16,14 +16,21 @@ use js_sys::{Array, Float32Array, Float64Array, Function, Object, Reflect, Uint8
 use wasm_bindgen::prelude::*;
 use wasm_bindgen::JsCast;
 
+/// The core's error as the JS exception (its message is the error's sentence).
 fn js_err(e: Error) -> JsError {
-    JsError::new(&e.to_string())
+    JsError::from(e)
+}
+
+/// A message between page and worker that does not fit (our fault, not the user's): the core's
+/// internal error, so every error crossing the boundary is one of the core's.
+fn internal(message: impl Into<String>) -> JsError {
+    js_err(Error::Internal(message.into()))
 }
 
 fn set(obj: &Object, key: &str, value: &JsValue) -> Result<(), JsError> {
     Reflect::set(obj, &JsValue::from_str(key), value)
         .map(|_| ())
-        .map_err(|_| JsError::new("could not build the result object"))
+        .map_err(|_| internal("could not build the result object"))
 }
 
 fn bytes(v: &[u8]) -> JsValue {
@@ -46,9 +53,9 @@ fn planes_from(arrays: &Array, width: usize, height: usize) -> Result<Vec<Plane>
         .iter()
         .map(|a| {
             let a: Float32Array =
-                a.dyn_into().map_err(|_| JsError::new("a plane sent to the worker is not a Float32Array"))?;
+                a.dyn_into().map_err(|_| internal("a plane sent to the worker is not a Float32Array"))?;
             if a.length() as usize != width * height {
-                return Err(JsError::new("the planes sent to the worker do not match the image size"));
+                return Err(internal("the planes sent to the worker do not match the image size"));
             }
             Ok(Plane { width, height, data: a.to_vec() })
         })
@@ -59,7 +66,7 @@ fn planes_from(arrays: &Array, width: usize, height: usize) -> Result<Vec<Plane>
 fn unflatten(data: &[f32], width: usize, height: usize) -> Result<Vec<Plane>, JsError> {
     let n = width * height;
     if n == 0 || !data.len().is_multiple_of(n) || data.is_empty() {
-        return Err(JsError::new("the planes sent to the worker do not match the image size"));
+        return Err(internal("the planes sent to the worker do not match the image size"));
     }
     Ok(data.chunks(n).map(|c| Plane { width, height, data: c.to_vec() }).collect())
 }
@@ -130,7 +137,7 @@ pub fn default_settings() -> String {
 /// as an array of plain objects: the page builds its fields' limits and help from it.
 #[wasm_bindgen(js_name = settingFields)]
 pub fn setting_fields() -> Result<JsValue, JsError> {
-    serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| JsError::new(&e.to_string()))
+    serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| internal(e.to_string()))
 }
 
 /// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
@@ -224,7 +231,7 @@ fn run_result(
         set(&obj, "detail", &bytes(&preview::flagged_rgba8(&run.image, &map, removed_detail::FLAG, f)))?;
         set(&obj, "detailShare", &JsValue::from_f64(removed_detail::flagged_share(&map)))?;
     }
-    let report = serde_json::to_string(&run.report).map_err(|e| JsError::new(&e.to_string()))?;
+    let report = serde_json::to_string(&run.report).map_err(|e| internal(e.to_string()))?;
     set(&obj, "report", &JsValue::from_str(&report))?;
     Ok(obj.into())
 }
@@ -243,12 +250,12 @@ pub fn denoise(
     let img = decode(input, max_megapixels)?;
     let pixels = img.width * img.height;
     if settings.method == crate::settings::Method::PixelGraph && pixels > PIXEL_GRAPH_MAX_PIXELS {
-        return Err(JsError::new(&format!(
+        return Err(js_err(Error::BadSettings(format!(
             "this image is too large for the pixel-graph method in the page ({:.1} megapixels; at most {} fit in one \
              worker's memory): use the patch-graph method, or the command line",
             pixels as f64 / 1e6,
             PIXEL_GRAPH_MAX_PIXELS / 1_000_000
-        )));
+        ))));
     }
     let progress = JsProgress(on_progress);
     let run = if estimate {
@@ -319,7 +326,7 @@ pub fn slice_second_stage(
     let basics = basics
         .iter()
         .map(|b| {
-            let b: Array = b.dyn_into().map_err(|_| JsError::new("a first stage sent to the worker is not a list"))?;
+            let b: Array = b.dyn_into().map_err(|_| internal("a first stage sent to the worker is not a list"))?;
             planes_from(&b, w, h)
         })
         .collect::<Result<Vec<_>, JsError>>()?;
@@ -360,13 +367,9 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe
     set(&obj, "sigma", &JsValue::from_f64(sigma))?;
     set(&obj, "range", &JsValue::from_f64(range))?;
     set(&obj, "planes", &plane_arrays(&planes).into())?;
-    set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| JsError::new(&e.to_string()))?))?;
+    set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| internal(e.to_string()))?))?;
     // Correlated noise: the spectra every band needs, as JSON ("null" for white noise).
-    set(
-        &obj,
-        "spectra",
-        &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| JsError::new(&e.to_string()))?),
-    )?;
+    set(&obj, "spectra", &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| internal(e.to_string()))?))?;
     Ok(obj.into())
 }
 
@@ -388,15 +391,15 @@ pub fn run_band(
     on_progress: &Function,
 ) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
-    let band: Band = serde_json::from_str(band).map_err(|_| JsError::new("the band description is not valid"))?;
+    let band: Band = serde_json::from_str(band).map_err(|_| internal("the band description is not valid"))?;
     if band.y1 <= band.y0 || band.y1 > full_height as usize {
-        return Err(JsError::new("the band lies outside the image"));
+        return Err(internal("the band lies outside the image"));
     }
     let (w, rows) = (width as usize, band.y1 - band.y0);
     let noisy = unflatten(noisy, w, rows)?;
     let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
-    let spectra: Option<Vec<NoiseSpectrum>> = serde_json::from_str(spectra)
-        .map_err(|_| JsError::new("the noise spectra sent to the worker are not valid"))?;
+    let spectra: Option<Vec<NoiseSpectrum>> =
+        serde_json::from_str(spectra).map_err(|_| internal("the noise spectra sent to the worker are not valid"))?;
     let stage = Stage::new(
         &noisy,
         basic.as_deref(),
@@ -431,11 +434,10 @@ impl BandAssembler {
     /// of Float32Arrays of `width` x `height`), kept where no patch lands.
     #[wasm_bindgen(constructor)]
     pub fn new(bands: &str, width: u32, height: u32, planes: &Array) -> Result<BandAssembler, JsError> {
-        let plan: Vec<Band> =
-            serde_json::from_str(bands).map_err(|_| JsError::new("the band description is not valid"))?;
+        let plan: Vec<Band> = serde_json::from_str(bands).map_err(|_| internal("the band description is not valid"))?;
         let (width, height) = (width as usize, height as usize);
         if plan.iter().any(|b| b.y1 <= b.y0 || b.y1 > height) {
-            return Err(JsError::new("a band lies outside the image"));
+            return Err(internal("a band lies outside the image"));
         }
         let fallback = planes_from(planes, width, height)?;
         Ok(BandAssembler { inner: bands::Assembler::new(plan, fallback), width })
@@ -443,10 +445,10 @@ impl BandAssembler {
 
     /// Band `index`'s sums: `num` its planes end to end, `den` one plane, over the band's rows.
     pub fn add(&mut self, index: u32, num: &[f64], den: &[f64]) -> Result<(), JsError> {
-        let band = self.inner.band(index as usize).ok_or_else(|| JsError::new("no such band"))?;
+        let band = self.inner.band(index as usize).ok_or_else(|| internal("no such band"))?;
         let (w, rows, channels) = (self.width, band.y1 - band.y0, self.inner.channels());
         if den.len() != w * rows || num.len() != channels * w * rows {
-            return Err(JsError::new("a band's sums do not match its size"));
+            return Err(internal("a band's sums do not match its size"));
         }
         let acc = Accumulator {
             x0: 0,
@@ -474,7 +476,7 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let planes = planes_from(planes, img.width, img.height)?;
     if planes.len() != p.working.len() {
-        return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
+        return Err(internal("the planes sent to the worker do not match the image's channels"));
     }
     let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
     run_result(input, max_megapixels, &settings, &img, &run)
@@ -496,12 +498,12 @@ pub fn estimate_error(
     let result = planes_from(result, img.width, img.height)?;
     let probed = planes_from(probe, img.width, img.height)?;
     if result.len() != p.working.len() || probed.len() != p.working.len() {
-        return Err(JsError::new("the planes sent to the worker do not match the image's channels"));
+        return Err(internal("the planes sent to the worker do not match the image's channels"));
     }
     // Where prepareRun skipped the pass, the planes are unperturbed, and the estimate finds the
     // same reason before it looks at them.
     let e = pipeline::estimate_error(&img, &p, result, Some(probed));
-    serde_json::to_string(&e).map_err(|e| JsError::new(&e.to_string()))
+    serde_json::to_string(&e).map_err(|e| internal(e.to_string()))
 }
 
 /// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.
@@ -512,7 +514,7 @@ pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<String,
     // The result in the reference's value map (float files are each scaled by their own range).
     let q =
         metrics::compare(&a.unit(0).map_err(js_err)?, &b.unit_in(0, a.unit_map(0)).map_err(js_err)?).map_err(js_err)?;
-    serde_json::to_string(&q).map_err(|e| JsError::new(&e.to_string()))
+    serde_json::to_string(&q).map_err(|e| internal(e.to_string()))
 }
 
 /// The patch group of the reference covering pixel (x, y), as JSON {positions, similarity, patch}.
@@ -547,10 +549,10 @@ pub fn assemble_file(
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let mut doc = decode_file(input, max_megapixels)?;
     if results.length() as usize != doc.units() {
-        return Err(JsError::new(&format!("{} results for a file of {} images", results.length(), doc.units())));
+        return Err(internal(format!("{} results for a file of {} images", results.length(), doc.units())));
     }
     for (k, r) in results.iter().enumerate() {
-        let r: Uint8Array = r.dyn_into().map_err(|_| JsError::new("a result sent to the worker is not a file"))?;
+        let r: Uint8Array = r.dyn_into().map_err(|_| internal("a result sent to the worker is not a file"))?;
         let one = decode_file(&r.to_vec(), max_megapixels)?;
         doc.replace_unit(k, &one).map_err(js_err)?;
     }

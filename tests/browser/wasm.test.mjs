@@ -57,33 +57,35 @@ test('the pixel-graph method refuses images too large for one worker, with the r
 });
 
 test('the split run gives the whole-image result: prepare, bands in any order, finish', () => {
-  // The same assembly www/stitch.js does, here on one wasm instance: bands' sums added per row in
-  // band order, rounded as methods::bands::Assembler does; invariant: equal to one 'denoise' call.
+  // What www/stitch.js does, here on one wasm instance: the bands run in reverse order and their
+  // sums fed to the core's BandAssembler; invariant: equal to one 'denoise' call.
   const settings = '{"method": "patch-graph"}';
   const whole = pg.denoise(sample, settings, 64, () => {});
-  const prep = pg.prepareRun(sample, settings, 64, 64);
+  const prep = pg.prepareRun(sample, settings, 64, false);
   const bands = JSON.parse(prep.bands);
   assert.equal(prep.planes.length, 1);
   assert.ok(bands.length >= 3, `${bands.length} bands`);
   const { width: w, height: h } = prep;
+  // Each preparation's own bands (none for a probe pass that cannot give an estimate).
   const stage = (prep, basic) => {
-    const sums = bands.map(() => null);
-    for (let i = bands.length - 1; i >= 0; i -= 1) {
-      const b = bands[i];
+    const own = JSON.parse(prep.bands);
+    if (!own.length) return prep.planes[0];
+    const asm = new pg.BandAssembler(prep.bands, w, h, prep.planes);
+    for (let i = own.length - 1; i >= 0; i -= 1) {
+      const b = own[i];
       const win = (p) => (p ? p.slice(b.y0 * w, b.y1 * w) : new Float32Array(0));
-      sums[i] = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), prep.spectra, win(prep.planes[0]), win(basic), () => {});
+      const r = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), prep.spectra, win(prep.planes[0]), win(basic), () => {});
+      asm.add(i, r.num, r.den);
     }
-    const out = new Float32Array(w * h);
-    for (let y = 0; y < h; y += 1) {
-      for (let x = 0; x < w; x += 1) {
-        let num = 0; let den = 0;
-        bands.forEach((b, i) => { if (y >= b.y0 && y < b.y1) { den += sums[i].den[(y - b.y0) * w + x]; num += sums[i].num[(y - b.y0) * w + x]; } });
-        const q = (num / den) * 1024;
-        out[y * w + x] = den > 0 ? Math.fround(q < 0 ? -Math.round(-q) : Math.round(q)) / 1024 : prep.planes[0][y * w + x];
-      }
-    }
-    return out;
+    return asm.finish()[0];
   };
+  // The assembler refuses sums that do not fit their band, and a band given twice.
+  const check = new pg.BandAssembler(prep.bands, w, h, prep.planes);
+  assert.throws(() => check.add(0, new Float64Array(3), new Float64Array(3)), /do not match its size/);
+  const b0 = bands[0];
+  const sums0 = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b0), prep.spectra, prep.planes[0].slice(b0.y0 * w, b0.y1 * w), new Float32Array(0), () => {});
+  check.add(0, sums0.num.slice(), sums0.den.slice());
+  assert.throws(() => check.add(0, sums0.num, sums0.den), /does not fit its place/);
   const basic = stage(prep, null);
   const final = stage(prep, basic);
   const r = pg.finishRun(sample, settings, [final], 64);
@@ -93,7 +95,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   // The error estimate split the same way (the probe's input prepared, its bands run, the estimate
   // from both passes' planes) equals the one-call estimate: invariant, same arithmetic.
   const oneCall = JSON.parse(pg.denoise(sample, settings, 64, () => {}, true).report).error_estimate;
-  const probePrep = pg.prepareRun(sample, settings, 64, 64, true);
+  const probePrep = pg.prepareRun(sample, settings, 64, true);
   const probed = stage(probePrep, stage(probePrep, null));
   const split = JSON.parse(pg.estimateError(sample, settings, [final], [probed], 64));
   assert.deepEqual(split, oneCall);
