@@ -292,6 +292,7 @@ async function main() {
   const started = await call('defaults');
   app.defaults = JSON.parse(started.settings);
   app.fields = started.fields;
+  app.methods = started.methods;
   document.body.dataset.wasm = started.build;
   let stored;
   try { stored = JSON.parse(localStorage.getItem(STORE) || 'null'); } catch { stored = null; }

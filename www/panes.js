@@ -9,8 +9,8 @@ import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 // (`key`): label, limits and help come from the core's table of settings (settingFields), so a
 // range is written once; the choices carry their help here.
 const fields = {
-  method: { get: (s) => s.method, set: (s, v) => { s.method = v; },
-    help: 'Patch graph groups similar patches and cleans them together (best quality); pixel graph smooths along a graph of neighbouring pixels that is cut at edges (fast).' },
+  // Its list and help come from the core's table of methods (app.methods).
+  method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
   noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; },
     help: 'What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.' },
   'pg-threshold': { key: 'patch_graph.threshold' },
@@ -42,10 +42,12 @@ for (const fld of Object.values(fields)) {
   fld.set ||= (s, v) => setKey(s, fld.key, v);
 }
 
-// Each numeric field's label, limits and help from the core's table; hover help on every field,
-// and the same lines listed in the form's "What these settings do".
-function addHelp(form, table) {
+// The method list, and each numeric field's label, limits and help, from the core's tables;
+// hover help on every field, and the same lines listed in the form's "What these settings do".
+function addHelp(form, table, methods) {
   const list = form.querySelector('.param-help dl');
+  form.elements.method.replaceChildren(...methods.map((m) => new Option(m.label, m.name)));
+  fields.method.help = methods.map((m) => `${m.label}: ${m.help}`).join(' ');
   for (const [name, fld] of Object.entries(fields)) {
     const input = form.elements[name];
     const label = input.closest('label');
@@ -144,7 +146,7 @@ export class Pane {
     this.canvas = q('.picture');
     this.overlay = q('.overlay');
     this.viewport = q('.viewport');
-    addHelp(q('.controls'), app.fields);
+    addHelp(q('.controls'), app.fields, app.methods);
     this.writeForm();
     q('.controls').addEventListener('input', () => this.readForm());
     q('.controls').addEventListener('submit', (e) => e.preventDefault());

@@ -25,7 +25,7 @@ export function installWorker(pg, ready, build) {
       const start = performance.now();
       let r;
       switch (m.kind) {
-        case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), build }; break;
+        case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), methods: pg.methods(), build }; break;
         case 'check': r = pg.checkSettings(m.json); break;
         case 'open': r = pg.open(m.bytes, MAX_MEGAPIXELS); break;
         case 'denoise': r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, progress, Boolean(m.estimate)); break;

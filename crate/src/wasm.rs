@@ -113,11 +113,6 @@ fn result_file(
     Ok((file::encode(&out, format, Some(&provenance)).map_err(js_err)?, format))
 }
 
-/// Pixels the pixel-graph method takes in one worker: its graph and solver vectors for the whole
-/// image must fit the 4 GiB of a wasm32 instance with room to spare (measured: about 140 bytes
-/// per pixel for colour, so 16 MP is about 2.2 GiB; 40 MP grey ran out).
-const PIXEL_GRAPH_MAX_PIXELS: usize = 16_000_000;
-
 /// Largest image whose removed-detail map the page draws (7 f32 planes: 450 MB at 16 MP).
 const DETAIL_MAP_MAX_PIXELS: usize = 16_000_000;
 
@@ -131,6 +126,13 @@ pub fn start() {
 #[wasm_bindgen(js_name = defaultSettings)]
 pub fn default_settings() -> String {
     Settings::default().to_json()
+}
+
+/// The methods (name, label, help, whether split into bands, page limit; `methods::METHODS`),
+/// as an array of plain objects: the page builds its method list from it.
+#[wasm_bindgen(js_name = methods)]
+pub fn methods() -> Result<JsValue, JsError> {
+    serde_wasm_bindgen::to_value(crate::methods::METHODS).map_err(|e| internal(e.to_string()))
 }
 
 /// The table of every numeric setting (key, label, range, step, help; `setting_fields::FIELDS`),
@@ -249,12 +251,14 @@ pub fn denoise(
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
     let img = decode(input, max_megapixels)?;
     let pixels = img.width * img.height;
-    if settings.method == crate::settings::Method::PixelGraph && pixels > PIXEL_GRAPH_MAX_PIXELS {
+    let info = settings.method.info();
+    if let Some(limit) = info.page_max_pixels.filter(|&l| pixels > l) {
         return Err(js_err(Error::BadSettings(format!(
-            "this image is too large for the pixel-graph method in the page ({:.1} megapixels; at most {} fit in one \
+            "this image is too large for the {} method in the page ({:.1} megapixels; at most {} fit in one \
              worker's memory): use the patch-graph method, or the command line",
+            info.name,
             pixels as f64 / 1e6,
-            PIXEL_GRAPH_MAX_PIXELS / 1_000_000
+            limit / 1_000_000
         ))));
     }
     let progress = JsProgress(on_progress);
