@@ -114,6 +114,23 @@ mod tests {
     }
 
     #[test]
+    fn validation_checks_every_field_of_the_table() {
+        // Invariant: each field set just above its maximum makes validation name that field, so
+        // no field of the table goes unchecked.
+        use serde_json::json;
+        for f in FIELDS {
+            let mut v = serde_json::to_value(crate::Settings::default()).unwrap();
+            let slot = v.pointer_mut(&format!("/{}", f.key.replace('.', "/"))).unwrap();
+            *slot = if slot.is_u64() { json!(f.max as u64 + 1) } else { json!(f.max + 1.0) };
+            let s: crate::Settings = serde_json::from_value(v).unwrap();
+            match s.validate() {
+                Err(Error::OutOfRange { name, .. }) => assert_eq!(name, f.key),
+                other => panic!("{} above its maximum: {other:?}", f.key),
+            }
+        }
+    }
+
+    #[test]
     fn every_default_lies_in_its_range() {
         // Invariant: the defaults pass their own checks.
         let d = serde_json::to_value(crate::Settings::default()).unwrap();
