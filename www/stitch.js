@@ -50,7 +50,8 @@ export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
 // then `end(run, prep, planes, bands, peak, t0)`.
 function split(bytes, settings, onProgress, end, probe = false) {
   const jobs = new Set();
-  const assemblers = new Set();
+  // One assembler worker serves both stages of the run (its wasm is loaded once).
+  let asmWorker = null;
   let stopped = false;
   // Peak wasm memory of a worker doing band jobs, and of one preparing or finishing the whole image.
   const peak = { band: 0, whole: 0 };
@@ -67,10 +68,10 @@ function split(bytes, settings, onProgress, end, probe = false) {
   // which bounds the sums the assembler holds), and their sums go to the assembler as they come.
   const stage = (prep, bands, basic, start, span, name) => new Promise((resolve, reject) => {
     const { width, height } = prep;
-    const asm = ownWorker();
-    assemblers.add(asm);
+    asmWorker ||= ownWorker();
+    const asm = asmWorker;
     let failed = false;
-    const fail = (e) => { if (!failed) { failed = true; asm.stop(); assemblers.delete(asm); reject(e); } };
+    const fail = (e) => { if (!failed) { failed = true; reject(e); } };
     const started = asm.call('assemblerStart', { bands: prep.bands, width, height, planes: prep.planes })
       .then((r) => { peak.whole = Math.max(peak.whole, r.memoryBytes || 0); });
     started.catch(fail);
@@ -82,7 +83,7 @@ function split(bytes, settings, onProgress, end, probe = false) {
     const report = () => onProgress(start + span * part.reduce((a, b) => a + b, 0) / bands.length, `${name}: ${done} of ${bands.length} bands`);
     const finish = () => Promise.all([started, ...adds])
       .then(() => asm.call('assemblerFinish'))
-      .then((r) => { asm.stop(); assemblers.delete(asm); peak.whole = Math.max(peak.whole, r.memoryBytes || 0); resolve(r.planes); }, fail);
+      .then((r) => { peak.whole = Math.max(peak.whole, r.memoryBytes || 0); resolve(r.planes); }, fail);
     const send = () => {
       const first = received.indexOf(false);
       while (!failed && sent < bands.length && sent - done < poolSize && sent <= first + 4 * poolSize) {
@@ -119,17 +120,18 @@ function split(bytes, settings, onProgress, end, probe = false) {
       const basic = await stage(prep, bands, null, 0.05, 0.45, 'basic estimate');
       planes = await stage(prep, bands, basic, 0.5, 0.45, 'final estimate');
     }
+    if (asmWorker) asmWorker.stop();
     return end(run, prep, planes, bands, peak, t0);
   })().catch((e) => {
     // One failed job fails the run: its other jobs stop instead of running on for nothing.
     for (const t of jobs) t.stop();
-    for (const a of assemblers) a.stop();
+    if (asmWorker) asmWorker.stop();
     throw e;
   });
   const stop = () => {
     stopped = true;
     for (const t of jobs) t.stop();
-    for (const a of assemblers) a.stop();
+    if (asmWorker) asmWorker.stop();
   };
   return { promise, stop };
 }
