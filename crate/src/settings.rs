@@ -23,10 +23,7 @@ pub enum Method {
 impl Method {
     /// The method's name in settings files and on the command line.
     pub fn name(self) -> &'static str {
-        match self {
-            Method::PixelGraph => "pixel-graph",
-            Method::PatchGraph => "patch-graph",
-        }
+        self.info().name
     }
 }
 

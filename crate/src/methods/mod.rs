@@ -82,8 +82,9 @@ mod tests {
         let row = readme.lines().find(|l| l.starts_with("| `method` |")).expect("README has a method row");
         for m in [Method::PatchGraph, Method::PixelGraph] {
             assert_eq!(METHODS.iter().filter(|i| i.method == m).count(), 1);
-            assert_eq!(m.info().name, m.name());
-            assert_eq!(serde_json::to_value(m).unwrap(), serde_json::json!(m.name()));
+            assert_eq!(m.info().method, m);
+            // The name the table gives is the one settings files use (serde's kebab-case).
+            assert_eq!(serde_json::to_value(m).unwrap(), serde_json::json!(m.info().name));
             assert!(row.contains(&format!("`{}`", m.name())), "README's method row lacks {}", m.name());
         }
     }
