@@ -44,7 +44,7 @@ export async function runBatch(files, pane, download) {
       const started = performance.now();
       const { units, pages } = await call('open', { bytes: bytes.slice() });
       // As in a pane: every page and channel, the file saved whole in its own format.
-      current = runWholeFile(bytes, units, settings, pane.settings.method, onProgress, undefined, undefined, pages);
+      current = runWholeFile(bytes, units, settings, onProgress, undefined, undefined, pages);
       const r = await current.promise;
       const stem = f.name.replace(/\.[^.]+$/, '');
       let name = `${stem}-denoised.${r.extension}`;

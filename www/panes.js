@@ -1,6 +1,6 @@
 // One pane: a setting of its own, its run (progress, stop), its views and its metrics.
 import { call, Stopped } from './tasks.js';
-import { runImage, runWholeFile, asVolume } from './wholefile.js';
+import { runImage, runWholeFile } from './wholefile.js';
 import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
@@ -259,8 +259,8 @@ export class Pane {
     const { file, unit } = src;
     const estimate = this.app.estimating();
     const { pages, units } = src.fileInfo;
-    const stack = asVolume(settings, pages) ? { file: src.file.slice(), unit, pages, units } : null;
-    this.run = runImage(src.bytes.slice(), settings, this.settings.method, show, estimate, stack);
+    const place = { file: src.file.slice(), unit, pages, units };
+    this.run = runImage(src.bytes.slice(), settings, show, estimate, place);
     try {
       const r = await this.run.promise;
       r.report = JSON.parse(r.report);
@@ -590,7 +590,7 @@ export class Pane {
     const bar = this.q('.bar');
     this.error('');
     this.busy(true);
-    this.run = runWholeFile(src.file, units, settings, this.settings.method, progressLine(bar, stage),
+    this.run = runWholeFile(src.file, units, settings, progressLine(bar, stage),
       (k) => (same(this.results.get(k)) ? this.results.get(k) : null),
       (k, r) => {
         r.settings = made;

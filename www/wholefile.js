@@ -4,23 +4,30 @@
 import { task, call, poolSize, Stopped } from './tasks.js';
 import { splitRun } from './stitch.js';
 
-// Whether a file of `pages` pages is denoised as a volume under these settings (JSON): each
-// image then takes patches from the pages around it (the core decides which pages continue it).
-export function asVolume(settings, pages) {
-  const s = JSON.parse(settings);
-  return pages > 1 && s.method === 'patch-graph' && s.patch_graph.neighbour_slices > 0;
-}
+// How the core runs an image of a file of `pages` pages under these settings (JSON):
+// {volume, bands}. As a volume, each image takes patches from the pages around it (the core
+// decides which); a method that splits into bands runs across all workers, others in one.
+export const runPlan = (settings, pages) => call('runPlan', { settings, pages });
 
-// One image: patch-graph runs split into bands across the workers; pixel-graph runs take one.
-// With `estimate`, a pixel-graph run makes its error estimate's pass before it returns; a
-// patch-graph run keeps its planes (`methodPlanes`) for the pass, which `splitEstimate` makes.
-// `stack` ({file, unit, pages, units}) runs image `unit` of a stack as a slice of its volume.
-export function runImage(bytes, settings, method, onProgress, estimate = false, stack = null) {
-  if (stack) {
-    const s = runStack(stack.file, [stack.unit], stack.pages, stack.units, settings, onProgress, estimate);
-    return { promise: s.promise.then((m) => m.get(stack.unit)), stop: s.stop };
-  }
-  return method === 'patch-graph' ? splitRun(bytes, settings, onProgress, estimate) : task('denoise', { bytes, settings, estimate }, onProgress);
+// One image, as the core's plan says. With `estimate`, a one-worker run makes its error
+// estimate's pass before it returns; a split run keeps its planes (`methodPlanes`) for the
+// pass, which `splitEstimate` makes. `stack` ({file, unit, pages, units}) names the image's
+// place in its file, which runs it as a slice of its volume when the plan says so.
+export function runImage(bytes, settings, onProgress, estimate = false, stack = null) {
+  let inner = null;
+  let stopped = false;
+  const promise = (async () => {
+    const plan = await runPlan(settings, stack ? stack.pages : 1);
+    if (stopped) throw new Stopped('stopped');
+    if (plan.volume) {
+      const s = runStack(stack.file, [stack.unit], stack.pages, stack.units, settings, onProgress, estimate);
+      inner = { promise: s.promise.then((m) => m.get(stack.unit)), stop: s.stop };
+    } else {
+      inner = plan.bands ? splitRun(bytes, settings, onProgress, estimate) : task('denoise', { bytes, settings, estimate }, onProgress);
+    }
+    return inner.promise;
+  })();
+  return { promise, stop: () => { stopped = true; if (inner) inner.stop(); } };
 }
 
 // Images `wanted` (in order) of a stack as a volume, split into jobs for any worker: the first
@@ -93,10 +100,9 @@ export function runStack(file, wanted, pages, units, settings, onProgress, estim
 // Returns {promise, stop}; the promise gives {file, extension, reports}. `done(k)` may give a
 // result already made for image k with these settings; `keep(k, r)` sees each new one. A
 // volume's images go through `runStack`; other images one after another, each across all workers.
-export function runWholeFile(file, units, settings, method, onProgress, done = () => null, keep = () => {}, pages = 1) {
+export function runWholeFile(file, units, settings, onProgress, done = () => null, keep = () => {}, pages = 1) {
   const running = new Set();
   let stopped = false;
-  const volume = asVolume(settings, pages);
   const fractions = new Array(units).fill(0);
   const tell = (k, f, s) => {
     fractions[k] = f;
@@ -108,7 +114,7 @@ export function runWholeFile(file, units, settings, method, onProgress, done = (
     if (stopped) throw new Stopped('stopped');
     const bytes = units > 1 ? (await call('unitFile', { bytes: file.slice(), unit: k })).file : file.slice();
     if (stopped) throw new Stopped('stopped');
-    const job = runImage(bytes, settings, method, (f, s) => tell(k, f, s));
+    const job = runImage(bytes, settings, (f, s) => tell(k, f, s));
     running.add(job);
     try {
       const r = await job.promise;
@@ -121,6 +127,8 @@ export function runWholeFile(file, units, settings, method, onProgress, done = (
   };
   const promise = (async () => {
     const results = [];
+    const { volume } = await runPlan(settings, pages);
+    if (stopped) throw new Stopped('stopped');
     if (volume) {
       const todo = [];
       for (let k = 0; k < units; k += 1) if (!done(k)) todo.push(k);

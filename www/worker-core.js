@@ -10,7 +10,8 @@ export const simdSupported = () => WebAssembly.validate(SIMD_PROBE);
 
 // `build` names the wasm build in use ('simd128' or 'baseline'); every reply carries it.
 export function installWorker(pg, ready, build) {
-  const MAX_MEGAPIXELS = 64;
+  // The core's limit, as the CLI's default (read once the wasm is ready).
+  let maxMegapixels = null;
   const keys = ['rgba', 'file', 'residual', 'cuts', 'detail', 'planes', 'num', 'den'];
   // Large arrays move to the page instead of being copied; `planes` is an array of them.
   const buffers = (r) => keys.filter((k) => r && typeof r === 'object' && r[k])
@@ -22,33 +23,35 @@ export function installWorker(pg, ready, build) {
     const m = event.data;
     try {
       const exports = await ready;
+      maxMegapixels ??= pg.maxMegapixels();
       const start = performance.now();
       let r;
       switch (m.kind) {
         case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), methods: pg.methods(), build }; break;
         case 'check': r = pg.checkSettings(m.json); break;
-        case 'open': r = pg.open(m.bytes, MAX_MEGAPIXELS); break;
-        case 'denoise': r = pg.denoise(m.bytes, m.settings, MAX_MEGAPIXELS, progress, Boolean(m.estimate)); break;
+        case 'runPlan': r = pg.runPlan(m.settings, m.pages); break;
+        case 'open': r = pg.open(m.bytes, maxMegapixels); break;
+        case 'denoise': r = pg.denoise(m.bytes, m.settings, maxMegapixels, progress, Boolean(m.estimate)); break;
         case 'stackAround': r = { units: Array.from(pg.stackAround(m.unit, m.pages, m.units, m.settings)) }; break;
-        case 'sliceFirst': r = pg.sliceFirstStage(m.bytes, m.unit, m.pages, m.units, m.settings, MAX_MEGAPIXELS, progress); break;
+        case 'sliceFirst': r = pg.sliceFirstStage(m.bytes, m.unit, m.pages, m.units, m.settings, maxMegapixels, progress); break;
         case 'sliceSecond':
-          r = pg.sliceSecondStage(m.bytes, m.unit, m.pages, m.units, m.settings, m.basics, MAX_MEGAPIXELS, progress, Boolean(m.estimate));
+          r = pg.sliceSecondStage(m.bytes, m.unit, m.pages, m.units, m.settings, m.basics, maxMegapixels, progress, Boolean(m.estimate));
           break;
-        case 'prepare': r = pg.prepareRun(m.bytes, m.settings, MAX_MEGAPIXELS, Boolean(m.probe)); break;
+        case 'prepare': r = pg.prepareRun(m.bytes, m.settings, maxMegapixels, Boolean(m.probe)); break;
         // A split run's assembler lives in a worker of its own (tasks.js ownWorker), one stage at a time.
         case 'assemblerStart': assembler = new pg.BandAssembler(m.bands, m.width, m.height, m.planes); r = {}; break;
         case 'assemblerAdd': assembler.add(m.index, m.num, m.den); r = {}; break;
         case 'assemblerFinish': r = { planes: assembler.finish() }; assembler = null; break;
-        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, MAX_MEGAPIXELS) }; break;
+        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, maxMegapixels) }; break;
         case 'band':
           r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, progress);
           break;
-        case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, MAX_MEGAPIXELS); break;
-        case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, MAX_MEGAPIXELS)); break;
-        case 'unitFile': r = { file: pg.unitFile(m.bytes, m.unit, MAX_MEGAPIXELS) }; break;
-        case 'assemble': r = pg.assembleFile(m.bytes, m.results, m.settings, MAX_MEGAPIXELS); break;
-        case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, MAX_MEGAPIXELS)); break;
-        case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, MAX_MEGAPIXELS)); break;
+        case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, maxMegapixels); break;
+        case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, maxMegapixels)); break;
+        case 'unitFile': r = { file: pg.unitFile(m.bytes, m.unit, maxMegapixels) }; break;
+        case 'assemble': r = pg.assembleFile(m.bytes, m.results, m.settings, maxMegapixels); break;
+        case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, maxMegapixels)); break;
+        case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, maxMegapixels)); break;
         default: throw new Error(`unknown request ${m.kind}`);
       }
       const memory = (exports && exports.memory) || (pg.__wasm && pg.__wasm.memory);

@@ -142,6 +142,31 @@ pub fn setting_fields() -> Result<JsValue, JsError> {
     serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| internal(e.to_string()))
 }
 
+/// The page's size limit in megapixels (the core's default, as the CLI's).
+#[wasm_bindgen(js_name = maxMegapixels)]
+pub fn max_megapixels() -> u32 {
+    u32::try_from(file::DEFAULT_MAX_MEGAPIXELS).unwrap_or(u32::MAX)
+}
+
+/// How the page runs one image of a file of `pages` pages under these settings, as the core
+/// decides: `volume` (a slice of its stack, [`stack_around`]) and `bands` (split into bands of
+/// rows across the workers, the method table's `splits_into_bands`; else one worker).
+#[wasm_bindgen(js_name = runPlan)]
+pub fn run_plan(settings_json: &str, pages: u32) -> Result<JsValue, JsError> {
+    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let plan = RunPlan {
+        volume: crate::stack::applies(&settings, pages as usize),
+        bands: settings.method.info().splits_into_bands,
+    };
+    serde_wasm_bindgen::to_value(&plan).map_err(|e| internal(e.to_string()))
+}
+
+#[derive(serde::Serialize)]
+struct RunPlan {
+    volume: bool,
+    bands: bool,
+}
+
 /// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
 #[wasm_bindgen(js_name = checkSettings)]
 pub fn check_settings(json: &str) -> Result<String, JsError> {

@@ -21,9 +21,13 @@ pub struct DecodeLimits {
     pub max_alloc_mib: u64,
 }
 
+/// The pages' size limit unless told otherwise, in megapixels: the CLI's `--max-megapixels`
+/// default and the page's limit (a 24-megapixel colour photo and a 16-bit 8000 x 8000 frame fit).
+pub const DEFAULT_MAX_MEGAPIXELS: u64 = 64;
+
 impl Default for DecodeLimits {
     fn default() -> Self {
-        DecodeLimits { max_megapixels: 64, max_alloc_mib: 2048 }
+        DecodeLimits { max_megapixels: DEFAULT_MAX_MEGAPIXELS, max_alloc_mib: 2048 }
     }
 }
 
@@ -549,5 +553,20 @@ pub fn document_of(img: Image, format: Format) -> Document {
         layout,
         pages: vec![WorkingPage { image: img, blanks, maps }],
         meta: Metadata::default(),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_readme_states_the_cores_size_limit() {
+        // Invariant: the README's sentences on the page's and the CLI's size limit name the
+        // value both take from the core (the page through the wasm face's maxMegapixels).
+        let readme = include_str!("../../../README.md");
+        let n = DEFAULT_MAX_MEGAPIXELS;
+        assert!(readme.contains(&format!("The page takes images up to {n} megapixels")));
+        assert!(readme.contains(&format!("Images larger than {n} megapixels are refused")));
     }
 }

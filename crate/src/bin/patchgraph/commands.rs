@@ -148,7 +148,7 @@ pub struct DenoiseArgs {
     #[arg(long)]
     pub cut_map: Option<PathBuf>,
     /// Refuse pages larger than this many megapixels.
-    #[arg(long, default_value_t = 64)]
+    #[arg(long, default_value_t = patchgraph::file::DEFAULT_MAX_MEGAPIXELS)]
     pub max_megapixels: u64,
     /// Also estimate the result's error without a clean image (Stein's unbiased risk estimate,
     /// one more pass): an estimated PSNR and its gain over the input, per image.
