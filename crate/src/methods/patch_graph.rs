@@ -16,7 +16,7 @@ use crate::error::{Error, Result};
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
 use crate::patch::matching::{match_groups, match_groups_across, patch_ssim, MatchParams};
-use crate::patch::transform::{axpy, dct2, dct_matrix, graph_fourier_basis, idct2};
+use crate::patch::transform::{combine_rows, dct2, dct_matrix, graph_fourier_basis, idct2};
 use crate::patch::Group;
 use crate::planes::Plane;
 use crate::progress::{check, Progress, SubProgress};
@@ -554,10 +554,8 @@ impl<'a> Stage<'a> {
         // Forward across the group: T_j = sum_i u_ij C_i (rows of k^2 coefficients).
         let across = |c: &[f32]| -> Vec<f32> {
             let mut t = vec![0.0f32; n * kk];
-            for i in 0..n {
-                for j in 0..n {
-                    axpy(&mut t[j * kk..(j + 1) * kk], u[i * n + j], &c[i * kk..(i + 1) * kk]);
-                }
+            for (j, row) in t.chunks_mut(kk).enumerate() {
+                combine_rows(row, &c[..n * kk], &u[j..], n);
             }
             t
         };
@@ -621,7 +619,7 @@ impl<'a> Stage<'a> {
                 coeff.iter_mut().for_each(|v| *v = 0.0);
                 match &kept[ch] {
                     Some(nz) => nz.iter().for_each(|&(j, f, v)| coeff[f] += u[i * n + j] * v),
-                    None => (0..n).for_each(|j| axpy(&mut coeff, u[i * n + j], &t[j * kk..(j + 1) * kk])),
+                    None => combine_rows(&mut coeff, t, &u[i * n..], 1),
                 }
                 idct2(&self.dct, k, &coeff, &mut patch[ch], &mut tmp);
             }

@@ -16,6 +16,35 @@ pub fn dct_matrix(k: usize) -> Vec<f32> {
     c
 }
 
+/// out = sum over s of w[s * stride] rows[s], rows of `out.len()` values each: the across-group
+/// transform and its inverse (a small matrix product). Each output value is summed in s order
+/// from 0, exactly as n [`axpy`] calls into zeros would, so results keep their bits; but a
+/// chunk of the output stays in registers over all rows instead of being stored once per row.
+pub fn combine_rows(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) {
+    const CHUNK: usize = 16;
+    let len = out.len();
+    let n = rows.len() / len.max(1);
+    let full = len - len % CHUNK;
+    for c0 in (0..full).step_by(CHUNK) {
+        let mut acc = [0.0f32; CHUNK];
+        for s in 0..n {
+            let a = w[s * stride];
+            let row = &rows[s * len + c0..s * len + c0 + CHUNK];
+            for (o, x) in acc.iter_mut().zip(row) {
+                *o += a * x;
+            }
+        }
+        out[c0..c0 + CHUNK].copy_from_slice(&acc);
+    }
+    if full < len {
+        let tail = &mut out[full..];
+        tail.iter_mut().for_each(|v| *v = 0.0);
+        for s in 0..n {
+            axpy(tail, w[s * stride], &rows[s * len + full..(s + 1) * len]);
+        }
+    }
+}
+
 /// y += a * x over equal-length slices (the loop the compiler vectorises).
 #[inline]
 pub fn axpy(y: &mut [f32], a: f32, x: &[f32]) {
@@ -166,6 +195,27 @@ pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
 mod tests {
     use super::*;
     use crate::graph::laplacian;
+
+    #[test]
+    fn combine_rows_gives_the_bits_of_the_axpy_loop() {
+        // Invariant: the blocked product adds each output's terms in the same order as n axpy
+        // calls into zeros (chunked and tail lengths, both strides), so outputs keep their bits.
+        let mut r = crate::synth::Rng::new(7);
+        for (n, len) in [(5usize, 64usize), (7, 25), (3, 144), (1, 9)] {
+            let rows: Vec<f32> = (0..n * len).map(|_| r.normal() as f32).collect();
+            let u: Vec<f32> = (0..n * n).map(|_| r.normal() as f32).collect();
+            for (start, stride) in [(n - 1, n), (0, 1)] {
+                let mut want = vec![0.0f32; len];
+                (0..n).for_each(|s| axpy(&mut want, u[start + s * stride], &rows[s * len..(s + 1) * len]));
+                let mut got = vec![1.0f32; len];
+                combine_rows(&mut got, &rows, &u[start..], stride);
+                assert_eq!(
+                    got.iter().map(|v| v.to_bits()).collect::<Vec<_>>(),
+                    want.iter().map(|v| v.to_bits()).collect::<Vec<_>>()
+                );
+            }
+        }
+    }
 
     #[test]
     fn dct_ii_rows_are_the_path_graph_laplacian_eigenvectors() {
