@@ -137,6 +137,15 @@ def colour_images():
             "retina-rgb256": data.retina()[560:816, 560:816]}
 
 
+def colour_checks():
+    """Colour images kept out of tuning, for independent checks of the camera-JPEG part: scikit-image's
+    chelsea (fur), rocket (a 512-wide crop: sky, structure), immunohistochemistry (stained tissue,
+    textured everywhere) and hubble_deep_field (a 512 x 512 crop: galaxies on a dark sky)."""
+    return {"chelsea-rgb": data.chelsea(), "rocket-rgb": data.rocket()[:, 64:576],
+            "immunohistochemistry-rgb": data.immunohistochemistry(),
+            "hubble-rgb512": data.hubble_deep_field()[180:692, 244:756]}
+
+
 def add_noise(clean, sigma):
     rng = np.random.Generator(np.random.PCG64(1234))
     noisy = clean.astype(np.float64) + sigma * rng.standard_normal(clean.shape)

@@ -5,7 +5,8 @@
     mid values of the published ranges; identity colour matrix), RGGB mosaic, noise of variance
     shot * x + read with log(read) = 2.18 log(shot) + 1.20 (natural logs; the read term is a variance,
     as in the published code), bilinear demosaicing, white balance, sRGB, 8 bits, JPEG quality 90.
-    The reference is the same pipeline without noise and without JPEG.
+    The reference is the same pipeline without noise and without JPEG. The same protocol also runs
+    on four colour images kept out of tuning (devset.colour_checks: rows marked "(check)").
 (b) 16-bit scientific frames: offset + gain * Poisson(peak * image) + N(0, read^2), offset 100,
     gain 8 grey levels per photon, read noise 12 grey levels, peaks 30 and 300. The reference is the
     expected value offset + gain * peak * image; PSNR over the signal range gain * peak.
@@ -87,11 +88,11 @@ def jpeg(rgb8, quality=90):
     return buf.getvalue()
 
 
-def camera_items(work):
-    """[(name, shot, clean_png, noisy_jpg)]"""
+def camera_items(work, images=None):
+    """[(name, shot, clean_png, noisy_jpg)] for `images` (default: the development set's colour images)."""
     os.makedirs(work, exist_ok=True)
     items = []
-    for name, img in devset.colour_images().items():
+    for name, img in (images or devset.colour_images()).items():
         clean = camera_pipeline(img, 0, None)
         cp = os.path.join(work, f"{name}-cam-clean.png")
         io.imsave(cp, clean, check_contrast=False)
@@ -151,10 +152,10 @@ def noise_fit(exe, path, *extra):
     return json.loads(subprocess.run([exe, "noise", path, "--json", *extra], capture_output=True, check=True).stdout)
 
 
-def camera_rows(exe, work):
+def camera_rows(exe, work, images=None):
     """Per image and shot: Patchgraph default, the best tuned peer, and the effective level's error."""
     out = []
-    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera")):
+    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera"), images):
         clean = io.imread(cp)
         noisy = np.asarray(Image.open(np_).convert("RGB"))
         # The noise's own std: before JPEG, which removes some of it (fine grain) and adds its own
@@ -211,9 +212,13 @@ def frame_rows(exe, work):
 
 def table(exe, work):
     cam, fr = camera_rows(exe, work), frame_rows(exe, work)
+    # Kept out of tuning: the same protocol on colour images the noise fit was never tuned on.
+    checks = camera_rows(exe, os.path.join(work, "checks"), devset.colour_checks())
+    for r in checks:
+        r["image"] += " (check)"
     lines = ["| image | noise | input | Patchgraph (default) | best tuned peer | difference | model chosen | fitted |",
              "|---|---|---|---|---|---|---|---|"]
-    for r in cam:
+    for r in cam + checks:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}; "
                      f"{r['in_file']:.2f} in the file) |")
@@ -222,7 +227,8 @@ def table(exe, work):
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | gain {r['gain']:.2f} (true {GAIN:g}), read {r['read']:.2f} "
                      f"(true {READ:g}), offset {r['offset']:.1f} (true {OFFSET:g}); read {r['read_given']:.2f} with the offset given |")
     summary = []
-    for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr)):
+    for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr),
+                        ("camera JPEGs of the independent checks (not tuned on)", checks)):
         d = np.mean([r["patchgraph"] - r["peer"] for r in rows])
         summary.append(f"{label}: mean {np.mean([r['patchgraph'] for r in rows]):.2f} dB against the best tuned peer's "
                        f"{np.mean([r['peer'] for r in rows]):.2f} dB ({d:+.2f} dB)")
