@@ -1,11 +1,12 @@
 //! Per-kernel timings of the patch-graph method, so a regression shows in the kernel it is in:
 //! block matching over one tile's crop, the 2-D DCT of a patch and its inverse, the graph basis of
-//! a group (the eigensolver, and the closed form a flat group takes), and aggregation of a group.
+//! a group (the eigensolver, and the closed form a flat group takes), the transform across a group,
+//! and aggregation of a group.
 //! Run: `cargo bench -p patchgraph --bench kernels`. The inputs are noisy synthetic planes drawn
 //! with the project's own generator, the same on every run.
 use patchgraph::patch::aggregate::{kaiser_window, Accumulator};
 use patchgraph::patch::matching::{match_groups, MatchParams};
-use patchgraph::patch::transform::{dct2, dct_matrix, graph_fourier_basis, idct2};
+use patchgraph::patch::transform::{axpy, combine_rows, dct2, dct_matrix, graph_fourier_basis, idct2};
 use patchgraph::planes::Plane;
 use patchgraph::progress::NoProgress;
 use patchgraph::synth::Rng;
@@ -94,4 +95,39 @@ fn aggregate_one_group(bencher: divan::Bencher) {
             acc.add(4 * (i % 4), 4 * (i / 4), k, std::slice::from_ref(p), &window, 0.5);
         }
     });
+}
+
+/// The transform across a group of n patches of 8 x 8 coefficients (T_j = sum_i u_ij C_i, an
+/// n x n by n x 64 product), as the method runs it (combine_rows, blocked)...
+#[divan::bench(args = [16, 32])]
+fn across_group_blocked(bencher: divan::Bencher, n: usize) {
+    let (c, u) = group_rows(n);
+    let mut t = vec![0.0f32; n * 64];
+    bencher.bench_local(|| {
+        for (j, row) in t.chunks_mut(64).enumerate() {
+            combine_rows(row, divan::black_box(&c), &u[j..], n);
+        }
+    });
+}
+
+/// ...and as n^2 axpy calls (the loop it replaced, same result bit for bit), for the ratio.
+#[divan::bench(args = [16, 32])]
+fn across_group_axpy_loop(bencher: divan::Bencher, n: usize) {
+    let (c, u) = group_rows(n);
+    let mut t = vec![0.0f32; n * 64];
+    bencher.bench_local(|| {
+        t.iter_mut().for_each(|v| *v = 0.0);
+        for i in 0..n {
+            for j in 0..n {
+                axpy(&mut t[j * 64..(j + 1) * 64], u[i * n + j], &divan::black_box(&c)[i * 64..(i + 1) * 64]);
+            }
+        }
+    });
+}
+
+fn group_rows(n: usize) -> (Vec<f32>, Vec<f32>) {
+    let mut rng = Rng::new(11);
+    let c = (0..n * 64).map(|_| 25.0 * rng.normal() as f32).collect();
+    let u = (0..n * n).map(|_| rng.normal() as f32).collect();
+    (c, u)
 }
