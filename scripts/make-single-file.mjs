@@ -18,7 +18,7 @@ const scoped = (f) => {
   const names = [...src.matchAll(/^export\s+(?:async\s+)?(?:function|class|const|let)\s+([A-Za-z_$][\w$]*)/gm)].map((m) => m[1]);
   return `// ---- ${f}\nconst { ${names.join(', ')} } = (() => {\n${unmodule(src)}\nreturn { ${names.join(', ')} };\n})();`;
 };
-const modules = ['tasks.js', 'stitch.js', 'wholefile.js', 'view.js', 'compare.js', 'zip.js', 'batch.js', 'noiseview.js', 'panes.js', 'sweep.js', 'app.js'].map(scoped).join('\n');
+const modules = ['tasks.js', 'stitch.js', 'wholefile.js', 'view.js', 'compare.js', 'zip.js', 'batch.js', 'noiseview.js', 'verdict.js', 'panes.js', 'sweep.js', 'app.js'].map(scoped).join('\n');
 const bundle = modules.replace("new Worker(new URL(base ? './worker.js?baseline' : './worker.js', import.meta.url), { type: 'module' })", "null");
 if (bundle.includes('import.meta')) throw new Error('a module still uses import.meta');
 

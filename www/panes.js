@@ -4,6 +4,7 @@ import { runImage, runWholeFile } from './wholefile.js';
 import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
+import { verdict } from './verdict.js';
 
 // Every form field: how it reads and writes the settings. Numeric fields name their setting
 // (`key`): label, limits and help come from the core's table of settings (settingFields), so a
@@ -69,29 +70,6 @@ function addHelp(form, table, methods) {
     dd.className = dt.className;
     list.append(dt, dd);
   }
-}
-
-// One plain sentence from the residual checks. The limits are rules of thumb of ours (not from a
-// source): they hold for white noise; grainy (correlated) noise leaves a correlated residual.
-function verdict(m, report) {
-  return residualVerdict(m, report) + estimateVerdict(report.error_estimate);
-}
-
-// What the reference-free error estimate adds to the verdict, where it was given.
-function estimateVerdict(e) {
-  if (!e || !e.applies || e.gain_db === null || e.gain_db === undefined) return '';
-  if (e.gain_db < 0) return ` The estimated error says the result is further from the clean image than the input (${fmt(e.gain_db)} dB).`;
-  if (e.gain_db < 0.5) return ` The estimated error says the result is hardly closer to the clean image than the input (${fmt(e.gain_db)} dB).`;
-  return ` The estimated error says the result is ${fmt(e.gain_db, 1)} dB closer to the clean image than the input.`;
-}
-
-function residualVerdict(m, report) {
-  const correlatedNoise = /correlated/.test(report.noise.model);
-  if (m.residual_edge_correlation > 0.15) return 'The removed part follows edges: some detail was removed with the noise.';
-  if (m.residual_std_over_sigma > 1.15) return 'More than the noise was removed: fine detail may be lost.';
-  if (!correlatedNoise && m.residual_lag1_correlation > 0.3) return 'The removed part is smoother than noise: it may hold structure.';
-  if (m.residual_std_over_sigma < 0.7) return 'Less than the estimated noise was removed: some noise remains.';
-  return 'The removed part looks like noise.';
 }
 
 // Above this share of pixels flagged in the removed-detail map the verdict names it (a residual
