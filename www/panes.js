@@ -4,7 +4,7 @@ import { runImage, runWholeFile } from './wholefile.js';
 import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
-import { verdict } from './verdict.js';
+import { verdict, fmt } from './verdict.js';
 
 // Every form field: how it reads and writes the settings. Numeric fields name their setting
 // (`key`): label, limits and help come from the core's table of settings (settingFields), so a
@@ -101,7 +101,6 @@ function estimateText(e) {
   return `${fmt(e.psnr)} dB ± ${fmt(e.psnr_spread)}, ${e.gain_db >= 0 ? '+' : ''}${fmt(e.gain_db)} dB over the input.${level}${note}`;
 }
 
-const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
 const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 
 export class Pane {
@@ -237,7 +236,8 @@ export class Pane {
     const { file, unit } = src;
     const estimate = this.app.estimating();
     const { pages, units } = src.fileInfo;
-    const place = { file: src.file.slice(), unit, pages, units };
+    // The file itself only where it may run as a volume (its other pages are then read).
+    const place = { file: pages > 1 ? src.file.slice() : null, unit, pages, units };
     this.run = runImage(src.bytes.slice(), settings, show, estimate, place);
     try {
       const r = await this.run.promise;

@@ -1,7 +1,8 @@
 // The plain sentence under a result's metrics: what its residual checks and its error estimate say.
 // Plain JS without the page, so the rules can be tested on their own.
 
-const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
+// Numbers as the page shows them ('–' where there is none).
+export const fmt = (v, d = 2) => (v === null || v === undefined || Number.isNaN(v) ? '–' : Number(v).toFixed(d));
 
 // One plain sentence from the residual checks. The limits are rules of thumb of ours (not from a
 // source): they hold for white noise; grainy (correlated) noise leaves a correlated residual.
