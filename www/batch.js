@@ -1,17 +1,20 @@
 // Many files with one setting: a queue with per-file progress and an overall bar, stop, per-file
 // errors that do not stop the others, and the results plus a report CSV in one ZIP.
-import { call, Stopped } from './tasks.js';
-import { runWholeFile } from './wholefile.js';
+import { call, poolSize, Stopped } from './tasks.js';
+import { runWholeFile, runPlan } from './wholefile.js';
 import { makeZip } from './zip.js';
 
 const $ = (id) => document.getElementById(id);
-let current = null;
+// The whole-file runs in flight (several at once for a one-worker method).
+const running = new Set();
 let stopping = false;
+let busy = false;
 
 const csvCell = (v) => { const s = v === null || v === undefined ? '' : String(v); return /[",\n]/.test(s) ? `"${s.replace(/"/g, '""')}"` : s; };
 
 export async function runBatch(files, pane, download) {
-  if (current || !files.length) return;
+  if (busy || !files.length) return;
+  busy = true;
   stopping = false;
   const list = $('batch-list');
   list.replaceChildren();
@@ -31,40 +34,61 @@ export async function runBatch(files, pane, download) {
   $('batch-stop').disabled = false;
   const overall = $('batch-overall');
   const settings = JSON.stringify(pane.settings);
-  const entries = [];
   const report = [['file', 'result', 'sigma', 'seconds', 'error']];
-  const used = new Set();
-  for (let i = 0; i < files.length; i += 1) {
+  // A method that splits an image into bands uses every worker for one file; one that runs in
+  // a single worker takes as many files at once as there are workers (the core's plan says which).
+  let lanes = 1;
+  try {
+    lanes = (await runPlan(settings, 1)).bands ? 1 : poolSize;
+  } catch { /* the settings' own error shows on each file below */ }
+  const done = new Array(files.length).fill(0);
+  const showOverall = () => { overall.value = done.reduce((a, b) => a + b, 0) / files.length; };
+  const outcomes = new Array(files.length);
+  const one = async (i) => {
     const f = files[i]; const row = rows[i];
-    if (stopping) { row.state.textContent = 'not run (stopped)'; report.push([f.name, '', '', '', 'not run: stopped']); continue; }
+    if (stopping) { row.state.textContent = 'not run (stopped)'; outcomes[i] = { error: 'not run: stopped' }; return; }
     row.state.textContent = 'running';
+    let job = null;
     try {
       const bytes = new Uint8Array(await f.arrayBuffer());
-      const onProgress = (fr) => { row.bar.value = fr; overall.value = (i + fr) / files.length; };
+      const onProgress = (fr) => { row.bar.value = fr; done[i] = fr; showOverall(); };
       const started = performance.now();
       const { units, pages } = await call('open', { bytes: bytes.slice() });
+      if (stopping) throw new Stopped('stopped');
       // As in a pane: every page and channel, the file saved whole in its own format.
-      current = runWholeFile(bytes, units, settings, onProgress, undefined, undefined, pages);
-      const r = await current.promise;
-      const stem = f.name.replace(/\.[^.]+$/, '');
-      let name = `${stem}-denoised.${r.extension}`;
-      for (let k = 2; used.has(name); k += 1) name = `${stem}-denoised-${k}.${r.extension}`;
-      used.add(name);
-      entries.push({ name, bytes: r.file });
-      const seconds = (performance.now() - started) / 1000;
-      report.push([f.name, name, r.reports[0].sigma_used.toFixed(4), seconds.toFixed(3), '']);
+      job = runWholeFile(bytes, units, settings, onProgress, undefined, undefined, pages);
+      running.add(job);
+      const r = await job.promise;
+      outcomes[i] = { r, seconds: (performance.now() - started) / 1000 };
       row.bar.value = 1;
       row.state.textContent = 'done';
     } catch (e) {
       const why = e instanceof Stopped ? 'stopped' : e.message;
-      report.push([f.name, '', '', '', why]);
+      outcomes[i] = { error: why };
       row.state.textContent = `failed: ${why}`;
       row.bar.value = 0;
     } finally {
-      current = null;
+      running.delete(job);
     }
-    overall.value = (i + 1) / files.length;
-  }
+    done[i] = 1;
+    showOverall();
+  };
+  let next = 0;
+  const lane = async () => { while (next < files.length) { const i = next; next += 1; await one(i); } };
+  await Promise.all(Array.from({ length: Math.min(lanes, files.length) }, lane));
+  // Names and report rows in the files' order, whichever finished first.
+  const entries = [];
+  const used = new Set();
+  files.forEach((f, i) => {
+    const { r, seconds, error } = outcomes[i];
+    if (!r) { report.push([f.name, '', '', '', error]); return; }
+    const stem = f.name.replace(/\.[^.]+$/, '');
+    let name = `${stem}-denoised.${r.extension}`;
+    for (let k = 2; used.has(name); k += 1) name = `${stem}-denoised-${k}.${r.extension}`;
+    used.add(name);
+    entries.push({ name, bytes: r.file });
+    report.push([f.name, name, r.reports[0].sigma_used.toFixed(4), seconds.toFixed(3), '']);
+  });
   const csv = `${report.map((r) => r.map(csvCell).join(',')).join('\n')}\n`;
   entries.push({ name: 'report.csv', bytes: new TextEncoder().encode(csv) });
   // The setting every file was denoised with, loadable in a pane or with `--settings`.
@@ -74,9 +98,10 @@ export async function runBatch(files, pane, download) {
   download(`patchgraph-batch-${pane.name}.zip`, makeZip(entries));
   $('batch-start').disabled = false;
   $('batch-stop').disabled = true;
+  busy = false;
 }
 
 export function stopBatch() {
   stopping = true;
-  if (current) current.stop();
+  for (const job of running) job.stop();
 }
