@@ -124,6 +124,9 @@ async function openSource(name, bytes, fromSample = false) {
       info = await call('open', { bytes: shown.slice() });
     }
     const hadOne = Boolean(app.source);
+    // Runs on the image being replaced stop: their results would belong to no image shown (and
+    // saving must never take one for the new image's).
+    for (const p of app.panes) p.stop();
     app.source = { name, file: bytes, fileInfo, unit: 0, bytes: shown, info };
     $('source-info').textContent = `${name}: ${describe(info, fileInfo)}`;
     setupSlices(fileInfo);

@@ -241,12 +241,19 @@ export class Pane {
     this.run = runImage(src.bytes.slice(), settings, show, estimate, place);
     try {
       const r = await this.run.promise;
+      // Another image was opened meanwhile (openSource stops runs; this guards the last moment).
+      if (this.app.source !== src || src.file !== file) throw new Stopped('stopped');
       r.report = JSON.parse(r.report);
       r.settings = made;
       r.quality = null;
       this.results.set(unit, r);
       // The slice control may have moved on while this ran: the result waits for its image.
-      if (this.app.source !== src || src.file !== file || src.unit !== unit) { r.methodPlanes = null; return; }
+      if (src.unit !== unit) {
+        r.methodPlanes = null;
+        stage.textContent = `done for image ${unit + 1} in ${fmt(r.seconds)} s; it shows when that image is chosen`;
+        bar.value = 1;
+        return;
+      }
       this.result = r;
       this.saved = false;
       this.q('.save-png').disabled = false;

@@ -185,6 +185,26 @@ print(json.dumps({"names": z.namelist(), "report": z.read("report.csv").decode()
   await page.screenshot({ path: join(OUT, 'batch.png'), fullPage: true });
 });
 
+test('opening another image during a run stops it; saving then gives the new image\'s result', async () => {
+  await page.setInputFiles('#file', join(SAMPLES, 'chart-noisy.png'));
+  await page.waitForFunction(() => /chart-noisy\.png: 256/.test(document.getElementById('source-info').textContent));
+  await page.locator('.pane').nth(0).locator('.run').click();
+  await page.setInputFiles('#file', join(SAMPLES, 'board-noisy.png'));
+  await page.waitForFunction(() => /board-noisy\.png: 320/.test(document.getElementById('source-info').textContent));
+  // The chart's run ends (stopped, or done just before) and frees the pane; nothing of it is kept.
+  await page.locator('.pane').nth(0).locator('.run:not([disabled])').waitFor({ timeout: 60000 });
+  assert.doesNotMatch(await stage(0).textContent(), /writing|cleaning|starting/);
+  assert.ok(await page.locator('.pane').nth(0).locator('.save-png').isDisabled(), 'no result to save before a run on the new image');
+  await runPane(0);
+  const saved = await download(0, '.save-png');
+  const settings = await download(0, '.save-json');
+  const cliOut = join(OUT, 'cli-after-switch.png');
+  execFileSync(CLI, ['denoise', join(SAMPLES, 'board-noisy.png'), '-o', cliOut, '--settings', settings]);
+  // The CLI on the new image is the reference: the same result (the page is the CLI's byte for byte).
+  const clean = join(SAMPLES, 'board-clean.png');
+  assert.ok(Math.abs(metrics(clean, saved).psnr - metrics(clean, cliOut).psnr) <= 0.01);
+});
+
 test('nothing left the origin and the console stayed clean', async () => {
   assert.deepEqual(foreign, []);
   assert.deepEqual(consoleErrors, []);
