@@ -215,9 +215,12 @@ export class Pane {
 
   error(text) { this.q('.error').textContent = text; }
 
+  // While a run, its error estimate or a save is under way, Run and Save wait (a click then
+  // would be ignored); Stop ends it.
   busy(on) {
     this.q('.run').disabled = on;
     this.q('.stop').disabled = !on;
+    this.q('.save-png').disabled = on || !this.results.size;
   }
 
   async start() {
@@ -256,7 +259,6 @@ export class Pane {
       }
       this.result = r;
       this.saved = false;
-      this.q('.save-png').disabled = false;
       const mib = (b) => `${Math.round(b / 1048576)} MiB`;
       const peakBytes = r.peakWorkerBytes || r.memoryBytes;
       const workers = r.workers || 1;
