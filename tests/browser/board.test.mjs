@@ -4,7 +4,7 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { writeFileSync, readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { session, ROOT, OUT } from './harness.mjs';
+import { session, finishedText, ROOT, OUT } from './harness.mjs';
 
 const SAMPLES = join(ROOT, 'sample-images');
 const s = session(before, after);
@@ -12,8 +12,7 @@ const { pane } = s;
 
 async function run(i) {
   await pane(i).locator('.run').click();
-  await pane(i).locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
-  assert.match(await pane(i).locator('.stage').textContent(), /done/);
+  assert.match(await finishedText(s.page, i), /done/);
 }
 
 test('at 1280 x 800 the first screen shows the settings, Run and most of the picture', async () => {

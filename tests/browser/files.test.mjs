@@ -5,7 +5,7 @@ import { test, before, after } from 'node:test';
 import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
 import { join } from 'node:path';
-import { start, openReady, ROOT, OUT } from './harness.mjs';
+import { start, openReady, finishedText, ROOT, OUT } from './harness.mjs';
 
 const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 const PY = process.env.PATCHGRAPH_PYTHON || join(ROOT, '.venv', 'bin', 'python');
@@ -50,8 +50,7 @@ test('a TIFF z-stack: one slice control for all settings, every page saved', asy
   // The stack's settings show (and only for stacks): neighbour slices, 1 by default.
   assert.equal(await pane().locator('input[name=pg-slices]').inputValue(), '1');
   await pane().locator('.run').click();
-  await pane().locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
-  assert.match(await pane().locator('.stage').textContent(), /done/);
+  assert.match(await finishedText(page, 0), /done/);
   // Denoised as a slice of the volume: the page says how many slices lent their patches.
   const metrics = await pane().locator('.metrics').textContent();
   assert.match(metrics, /Slices joined1/);
@@ -99,7 +98,7 @@ test('a float FITS cube with blank pixels saves as FITS, blanks where they were'
   await page.waitForFunction(() => /2 images/.test(document.getElementById('source-info').textContent));
   assert.match(await page.locator('#source-info').textContent(), /32-bit float FITS.*100 blank pixels/);
   await pane().locator('.run').click();
-  await pane().locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
+  await finishedText(page, 0);
   const { path, suggested } = await save('cube-out.fits');
   assert.match(suggested, /cube-in-denoised-A\.fits$/);
   const verdict = py(`

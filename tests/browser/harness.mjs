@@ -48,3 +48,16 @@ export function session(before, after) {
   s.pane = (i) => s.page.locator('.pane').nth(i);
   return s;
 }
+
+// Waits until pane `i`'s progress line says its run finished and returns the line as it was then:
+// a patch-graph pane moves on to its error estimate at once, so a later read may see that instead.
+// Then waits for the pane to be free again (its error estimate, if any, done): Save waits till then.
+export async function finishedText(page, i, timeout = 60000) {
+  const handle = await page.waitForFunction((k) => {
+    const t = document.querySelectorAll('.pane .stage')[k].textContent;
+    return /done in|failed/.test(t) ? t : null;
+  }, i, { timeout });
+  const text = await handle.jsonValue();
+  await page.locator('.pane').nth(i).locator('.run:not([disabled])').waitFor({ timeout });
+  return text;
+}

@@ -8,7 +8,7 @@ import { copyFileSync, mkdtempSync, readFileSync, readdirSync } from 'node:fs';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { execFileSync } from 'node:child_process';
-import { ROOT, OUT } from './harness.mjs';
+import { finishedText, ROOT, OUT } from './harness.mjs';
 
 const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 let context; let page; let folder;
@@ -46,8 +46,7 @@ test('the file alone opens with its sample, takes a dropped image, denoises and 
   await page.waitForFunction(() => /dropped-chart\.png: 256/.test(document.getElementById('source-info').textContent));
   const pane = page.locator('.pane').nth(0);
   await pane.locator('.run').click();
-  await pane.locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 120000 });
-  assert.match(await pane.locator('.stage').textContent(), /done/);
+  assert.match(await finishedText(page, 0, 120000), /done/);
   const [d] = await Promise.all([page.waitForEvent('download'), pane.locator('.save-png').click()]);
   const saved = join(OUT, `offline-${d.suggestedFilename()}`);
   await d.saveAs(saved);

@@ -6,7 +6,7 @@ import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { start, ROOT, OUT } from './harness.mjs';
+import { start, finishedText, ROOT, OUT } from './harness.mjs';
 
 const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 const SAMPLES = join(ROOT, 'sample-images');
@@ -30,14 +30,15 @@ const stage = (pane) => page.locator('.pane').nth(pane).locator('.stage');
 
 async function runPane(i, click = true) {
   if (click) await page.locator('.pane').nth(i).locator('.run').click();
+  let seen;
   try {
-    await stage(i).filter({ hasText: /done in|failed/ }).waitFor({ timeout: 60000 });
+    seen = await finishedText(page, i);
   } catch (e) {
     const texts = await page.locator('.pane .stage').allTextContents();
     const errs = await page.locator('.pane .error').allTextContents();
     throw new Error(`pane ${i} did not finish: stages ${JSON.stringify(texts)}, errors ${JSON.stringify(errs)}, console ${JSON.stringify(consoleErrors)}`, { cause: e });
   }
-  assert.match(await stage(i).textContent(), /done/);
+  assert.match(seen, /done/);
 }
 
 async function download(i, selector) {

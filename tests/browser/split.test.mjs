@@ -7,7 +7,7 @@ import assert from 'node:assert/strict';
 import { execFileSync } from 'node:child_process';
 import { readFileSync } from 'node:fs';
 import { join } from 'node:path';
-import { start, ROOT, OUT } from './harness.mjs';
+import { start, finishedText, ROOT, OUT } from './harness.mjs';
 
 const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 const INPUT = join(ROOT, 'sample-images', 'board-noisy.png');
@@ -31,8 +31,7 @@ async function runWith(query) {
   const pane = page.locator('.pane').nth(0);
   await pane.locator('select[name=method]').selectOption('patch-graph');
   await pane.locator('.run').click();
-  await pane.locator('.stage').filter({ hasText: /done in|failed/ }).waitFor({ timeout: 120000 });
-  const stage = await pane.locator('.stage').textContent();
+  const stage = await finishedText(page, 0, 120000);
   assert.match(stage, /done/, await pane.locator('.error').textContent());
   const save = async (sel, name) => {
     const [d] = await Promise.all([page.waitForEvent('download'), pane.locator(sel).click()]);
