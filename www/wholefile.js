@@ -12,12 +12,13 @@ export const runPlan = (settings, pages) => call('runPlan', { settings, pages })
 // One image, as the core's plan says. With `estimate`, a one-worker run makes its error
 // estimate's pass before it returns; a split run keeps its planes (`methodPlanes`) for the
 // pass, which `splitEstimate` makes. `stack` ({file, unit, pages, units}) names the image's
-// place in its file, which runs it as a slice of its volume when the plan says so.
-export function runImage(bytes, settings, onProgress, estimate = false, stack = null) {
+// place in its file, which runs it as a slice of its volume when the plan says so. `known` is
+// the plan when the caller already has it (one request per file, not one per image).
+export function runImage(bytes, settings, onProgress, estimate = false, stack = null, known = null) {
   let inner = null;
   let stopped = false;
   const promise = (async () => {
-    const plan = await runPlan(settings, stack ? stack.pages : 1);
+    const plan = known || await runPlan(settings, stack ? stack.pages : 1);
     if (stopped) throw new Stopped('stopped');
     if (plan.volume) {
       const s = runStack(stack.file, [stack.unit], stack.pages, stack.units, settings, onProgress, estimate);
@@ -104,6 +105,7 @@ export function runWholeFile(file, units, settings, onProgress, done = () => nul
   const running = new Set();
   let stopped = false;
   const fractions = new Array(units).fill(0);
+  let plan = null;
   const tell = (k, f, s) => {
     fractions[k] = f;
     onProgress(fractions.reduce((a, b) => a + b, 0) / units, units > 1 ? `image ${k + 1} of ${units}: ${s}` : s);
@@ -114,7 +116,7 @@ export function runWholeFile(file, units, settings, onProgress, done = () => nul
     if (stopped) throw new Stopped('stopped');
     const bytes = units > 1 ? (await call('unitFile', { bytes: file.slice(), unit: k })).file : file.slice();
     if (stopped) throw new Stopped('stopped');
-    const job = runImage(bytes, settings, (f, s) => tell(k, f, s));
+    const job = runImage(bytes, settings, (f, s) => tell(k, f, s), false, null, plan);
     running.add(job);
     try {
       const r = await job.promise;
@@ -127,9 +129,9 @@ export function runWholeFile(file, units, settings, onProgress, done = () => nul
   };
   const promise = (async () => {
     const results = [];
-    const { volume } = await runPlan(settings, pages);
+    plan = await runPlan(settings, pages);
     if (stopped) throw new Stopped('stopped');
-    if (volume) {
+    if (plan.volume) {
       const todo = [];
       for (let k = 0; k < units; k += 1) if (!done(k)) todo.push(k);
       const job = runStack(file, todo, pages, units, settings, (f, s) => onProgress(f, s), false, (k, r) => {
