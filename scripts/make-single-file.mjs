@@ -18,7 +18,21 @@ const scoped = (f) => {
   const names = [...src.matchAll(/^export\s+(?:async\s+)?(?:function|class|const|let)\s+([A-Za-z_$][\w$]*)/gm)].map((m) => m[1]);
   return `// ---- ${f}\nconst { ${names.join(', ')} } = (() => {\n${unmodule(src)}\nreturn { ${names.join(', ')} };\n})();`;
 };
-const modules = ['tasks.js', 'stitch.js', 'wholefile.js', 'view.js', 'compare.js', 'zip.js', 'batch.js', 'noiseview.js', 'verdict.js', 'panes.js', 'sweep.js', 'app.js'].map(scoped).join('\n');
+// The page's modules, each after those it imports, found from app.js down (a new module needs
+// no list of its own here).
+function moduleOrder(entry) {
+  const order = [];
+  const seen = new Set();
+  const visit = (f) => {
+    if (seen.has(f)) return;
+    seen.add(f);
+    for (const m of read(f).matchAll(/^import\s[^;]*from\s+'\.\/([\w-]+\.js)';/gm)) visit(m[1]);
+    order.push(f);
+  };
+  visit(entry);
+  return order;
+}
+const modules = moduleOrder('app.js').map(scoped).join('\n');
 const bundle = modules.replace("new Worker(new URL(base ? './worker.js?baseline' : './worker.js', import.meta.url), { type: 'module' })", "null");
 if (bundle.includes('import.meta')) throw new Error('a module still uses import.meta');
 
