@@ -2,7 +2,7 @@
 //! Works on a decoded [`Image`] and never alters it.
 
 use crate::color;
-use crate::error::Result;
+use crate::error::{Error, Result};
 use crate::error_estimate::{self, ErrorEstimate, PixelVariance, Probe};
 use crate::methods::{self, MethodOutput};
 use crate::metrics::{self, ResidualStats};
@@ -347,7 +347,7 @@ pub fn denoise(img: &Image, settings: &Settings, progress: &dyn Progress) -> Res
     let sub = SubProgress { parent: progress, start: 0.05, span: 0.9 };
     let output = run_method(&planes_in, &prepared, settings, &sub)?;
     drop(planes_in);
-    let out = finish(img, settings, prepared, output);
+    let out = finish(img, settings, prepared, output)?;
     progress.report(1.0, "done");
     Ok(out)
 }
@@ -373,7 +373,7 @@ pub fn denoise_estimated(img: &Image, settings: &Settings, progress: &dyn Progre
         None => None,
     };
     let estimate = estimate_error(img, &prepared, output.planes.clone(), probed);
-    let mut out = finish(img, settings, prepared, output);
+    let mut out = finish(img, settings, prepared, output)?;
     out.report.error_estimate = Some(estimate);
     progress.report(1.0, "done");
     Ok(out)
@@ -455,7 +455,14 @@ impl Prepared<'_> {
 }
 
 /// The method's planes back to the image: inverse colour transform and noise model, residual checks.
-pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> RunOutput {
+/// A result holding a value that is not a number is an error, never a file (such values would
+/// be written as black).
+pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: MethodOutput) -> Result<RunOutput> {
+    if output.planes.iter().any(|p| p.data.iter().any(|v| !v.is_finite())) {
+        return Err(Error::Internal(
+            "the method's result holds values that are not numbers; nothing was written".into(),
+        ));
+    }
     let Prepared { stabilisers, clip, working, sigma, estimated, estimates, noise, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
@@ -464,7 +471,7 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
     drop(working);
     let stabilised = stabilisers.is_some();
     let out_planes = model_back(planes, stabilisers.as_deref(), clip.as_deref());
-    RunOutput {
+    Ok(RunOutput {
         image: img.with_channels(out_planes),
         report: RunReport {
             method: settings.method.name(),
@@ -480,7 +487,7 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
             slices_joined: None,
         },
         cut_map,
-    }
+    })
 }
 
 /// Sigma for drawing the residual (input minus result) in the input's grey levels: the sigma

@@ -93,7 +93,7 @@ fn finish(
 ) -> Result<RunOutput> {
     let slice = held.get(&z).ok_or_else(|| Error::Internal("a slice went missing".into()))?;
     let output = MethodOutput { planes, cut_map: None, work_units: 0 };
-    let mut run = pipeline::finish(&slice.img, settings, slice.prepared.clone(), output);
+    let mut run = pipeline::finish(&slice.img, settings, slice.prepared.clone(), output)?;
     run.report.slices_joined = Some(neighbours(held, z, range)?.len());
     Ok(run)
 }

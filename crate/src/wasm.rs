@@ -507,7 +507,8 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
     if planes.len() != p.working.len() {
         return Err(internal("the planes sent to the worker do not match the image's channels"));
     }
-    let run = pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 });
+    let run =
+        pipeline::finish(&img, &settings, p, MethodOutput { planes, cut_map: None, work_units: 0 }).map_err(js_err)?;
     run_result(input, max_megapixels, &settings, &img, &run)
 }
 

@@ -241,3 +241,33 @@ fn clipped_colour_with_a_given_sigma_keeps_every_channel() {
         / (3.0 * 48.0 * 28.0);
     assert!(dark < 4.0, "{dark}");
 }
+
+#[test]
+fn a_grey_picture_saved_as_colour_with_grainy_noise_comes_back_grey_and_whole() {
+    // Regression (2026-12-05): the chroma planes of R = G = B carry no noise, so their measured
+    // spectrum is all zeros, and the Wiener gain 0 / 0 made every pixel NaN, written as black.
+    // Invariants: the result is finite, still grey (R = G = B), and closer to the clean scene
+    // than the input (grainy noise: white noise summed over 3 x 3 pixels, std 3 x 4 = 12).
+    let (w, h) = (192usize, 192usize);
+    let white = noise((w + 2) * (h + 2), 4.0, 21);
+    let clean =
+        Plane::from_fn(w, h, |x, y| 60.0 + 0.5 * x as f32 + if (x / 48 + y / 48) % 2 == 0 { 60.0 } else { 0.0 });
+    let grainy = Plane::from_fn(w, h, |x, y| {
+        let s: f32 =
+            (0..3).flat_map(|j| (0..3).map(move |i| (i, j))).map(|(i, j)| white[(y + j) * (w + 2) + x + i]).sum();
+        (clean.get(x, y) + s).round().clamp(0.0, 255.0)
+    });
+    let img = Image { channels: vec![grainy.clone(), grainy.clone(), grainy.clone()], ..grey(grainy.clone()) };
+    let out = pipeline::denoise(&img, &Settings::default(), &NoProgress).unwrap();
+    let ch = &out.image.channels;
+    assert!(ch.iter().all(|c| c.data.iter().all(|v| v.is_finite())));
+    assert!(ch[1]
+        .data
+        .iter()
+        .zip(&ch[0].data)
+        .chain(ch[2].data.iter().zip(&ch[0].data))
+        .all(|(a, b)| (a - b).abs() <= 1.0));
+    let mse =
+        |p: &Plane| p.data.iter().zip(&clean.data).map(|(a, b)| f64::from(a - b).powi(2)).sum::<f64>() / p.len() as f64;
+    assert!(mse(&ch[0]) < 0.5 * mse(&grainy), "result {} input {}", mse(&ch[0]), mse(&grainy));
+}

@@ -292,8 +292,11 @@ struct CoeffNoise {
 
 impl CoeffNoise {
     fn new(k: usize, sigma: f64, lambda: f64, spectrum: Option<&NoiseSpectrum>) -> Self {
+        // A plane without noise (the chroma of a grey picture saved as colour) measures a
+        // spectrum of zeros; the floor keeps the Wiener gain 0 / 0 from becoming NaN.
+        let floor = 1e-6 * sigma * sigma;
         let std: Vec<f64> = match spectrum {
-            Some(s) => s.variances.iter().map(|v| v.max(0.0).sqrt()).collect(),
+            Some(s) => s.variances.iter().map(|v| v.max(floor).sqrt()).collect(),
             None => vec![sigma; k * k],
         };
         let sigma2 = sigma * sigma;
