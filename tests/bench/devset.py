@@ -137,13 +137,20 @@ def colour_images():
             "retina-rgb256": data.retina()[560:816, 560:816]}
 
 
-def colour_checks():
-    """Colour images kept out of tuning, for independent checks of the camera-JPEG part: scikit-image's
-    chelsea (fur), rocket (a 512-wide crop: sky, structure), immunohistochemistry (stained tissue,
-    textured everywhere) and hubble_deep_field (a 512 x 512 crop: galaxies on a dark sky)."""
+def colour_images_more():
+    """More colour images for the camera-JPEG part, added 2026-12-04 as independent checks and tuned
+    on since 2026-12-05 (the luminance-to-colour noise limit was chosen on them with the rest):
+    scikit-image's chelsea (fur), rocket (a 512-wide crop: sky, structure), immunohistochemistry
+    (stained tissue, textured everywhere) and hubble_deep_field (a 512 x 512 crop: galaxies)."""
     return {"chelsea-rgb": data.chelsea(), "rocket-rgb": data.rocket()[:, 64:576],
             "immunohistochemistry-rgb": data.immunohistochemistry(),
             "hubble-rgb512": data.hubble_deep_field()[180:692, 244:756]}
+
+
+def colour_checks():
+    """Colour images kept out of tuning, for independent checks of the camera-JPEG part:
+    scikit-image's stereo_motorcycle (left view, a 512-wide crop: a workshop scene)."""
+    return {"motorcycle-rgb": data.stereo_motorcycle()[0][:, 100:612]}
 
 
 def add_noise(clean, sigma):

@@ -6,7 +6,10 @@
     shot * x + read with log(read) = 2.18 log(shot) + 1.20 (natural logs; the read term is a variance,
     as in the published code), bilinear demosaicing, white balance, sRGB, 8 bits, JPEG quality 90.
     The reference is the same pipeline without noise and without JPEG. The same protocol also runs
-    on four colour images kept out of tuning (devset.colour_checks: rows marked "(check)").
+    on four more colour images (devset.colour_images_more: rows marked "(more)"), with the camera's
+    own colour noise reduction (the opponent colour planes blurred by a Gaussian of std 2 before
+    JPEG: rows marked "(colour-smoothed)"), and on an image kept out of tuning
+    (devset.colour_checks: rows marked "(check)", plain and colour-smoothed).
 (b) 16-bit scientific frames: offset + gain * Poisson(peak * image) + N(0, read^2), offset 100,
     gain 8 grey levels per photon, read noise 12 grey levels, peaks 30 and 300. The reference is the
     expected value offset + gain * peak * image; PSNR over the signal range gain * peak.
@@ -21,7 +24,7 @@ import os
 import cv2
 import numpy as np
 from PIL import Image
-from scipy.ndimage import convolve
+from scipy.ndimage import convolve, gaussian_filter
 from skimage import io
 from skimage.metrics import peak_signal_noise_ratio
 from skimage.restoration import denoise_tv_chambolle
@@ -82,14 +85,28 @@ def camera_pipeline(srgb8, shot, rng):
     return np.clip(np.rint(255 * linear_to_srgb(rgb)), 0, 255).astype(np.uint8)
 
 
+OPPONENT = np.array([[1, 1, 1], [1, 0, -1], [1, -2, 1]], float)
+OPPONENT /= np.linalg.norm(OPPONENT, axis=1)[:, None]
+
+
+def smooth_colour(rgb8):
+    """A camera's own colour noise reduction (common practice in camera processing; the form is
+    ours): the two opponent colour planes blurred by a Gaussian of std 2, brightness kept."""
+    o = rgb8.astype(np.float64) @ OPPONENT.T
+    for c in (1, 2):
+        o[..., c] = gaussian_filter(o[..., c], 2.0)
+    return np.clip(np.rint(o @ OPPONENT), 0, 255).astype(np.uint8)
+
+
 def jpeg(rgb8, quality=90):
     buf = pyio.BytesIO()
     Image.fromarray(rgb8).save(buf, format="JPEG", quality=quality)
     return buf.getvalue()
 
 
-def camera_items(work, images=None):
-    """[(name, shot, clean_png, noisy_jpg)] for `images` (default: the development set's colour images)."""
+def camera_items(work, images=None, finish=None):
+    """[(name, shot, clean_png, noisy_jpg)] for `images` (default: the development set's colour
+    images); `finish` (e.g. smooth_colour) is applied to the noisy image before JPEG."""
     os.makedirs(work, exist_ok=True)
     items = []
     for name, img in (images or devset.colour_images()).items():
@@ -99,6 +116,7 @@ def camera_items(work, images=None):
         for shot in SHOTS:
             rng = np.random.Generator(np.random.PCG64(1234))
             noisy = camera_pipeline(img, shot, rng)
+            noisy = finish(noisy) if finish else noisy
             np.save(os.path.join(work, f"{name}-shot{shot}-before-jpeg.npy"), noisy)
             np_ = os.path.join(work, f"{name}-shot{shot}.jpg")
             with open(np_, "wb") as f:
@@ -152,10 +170,10 @@ def noise_fit(exe, path, *extra):
     return json.loads(subprocess.run([exe, "noise", path, "--json", *extra], capture_output=True, check=True).stdout)
 
 
-def camera_rows(exe, work, images=None):
+def camera_rows(exe, work, images=None, finish=None):
     """Per image and shot: Patchgraph default, the best tuned peer, and the effective level's error."""
     out = []
-    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera"), images):
+    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera"), images, finish):
         clean = io.imread(cp)
         noisy = np.asarray(Image.open(np_).convert("RGB"))
         # The noise's own std: before JPEG, which removes some of it (fine grain) and adds its own
@@ -212,13 +230,16 @@ def frame_rows(exe, work):
 
 def table(exe, work):
     cam, fr = camera_rows(exe, work), frame_rows(exe, work)
-    # Kept out of tuning: the same protocol on colour images the noise fit was never tuned on.
-    checks = camera_rows(exe, os.path.join(work, "checks"), devset.colour_checks())
-    for r in checks:
-        r["image"] += " (check)"
+    marked = lambda rows, mark: [dict(r, image=f"{r['image']} ({mark})") for r in rows]
+    more = marked(camera_rows(exe, os.path.join(work, "more"), devset.colour_images_more()), "more")
+    smoothed = marked(camera_rows(exe, os.path.join(work, "smoothed"), None, smooth_colour), "colour-smoothed")
+    # Kept out of tuning: the same protocol on an image the noise fit was never tuned on.
+    checks = marked(camera_rows(exe, os.path.join(work, "checks"), devset.colour_checks()), "check")
+    checks += marked(camera_rows(exe, os.path.join(work, "checks-smoothed"), devset.colour_checks(), smooth_colour),
+                     "check, colour-smoothed")
     lines = ["| image | noise | input | Patchgraph (default) | best tuned peer | difference | model chosen | fitted |",
              "|---|---|---|---|---|---|---|---|"]
-    for r in cam + checks:
+    for r in cam + more + smoothed + checks:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}; "
                      f"{r['in_file']:.2f} in the file) |")
@@ -227,8 +248,9 @@ def table(exe, work):
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | gain {r['gain']:.2f} (true {GAIN:g}), read {r['read']:.2f} "
                      f"(true {READ:g}), offset {r['offset']:.1f} (true {OFFSET:g}); read {r['read_given']:.2f} with the offset given |")
     summary = []
-    for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr),
-                        ("camera JPEGs of the independent checks (not tuned on)", checks)):
+    for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr), ("camera JPEGs of the four more images", more),
+                        ("colour-smoothed camera JPEGs", smoothed),
+                        ("camera JPEGs of the independent check (not tuned on)", checks)):
         d = np.mean([r["patchgraph"] - r["peer"] for r in rows])
         summary.append(f"{label}: mean {np.mean([r['patchgraph'] for r in rows]):.2f} dB against the best tuned peer's "
                        f"{np.mean([r['peer'] for r in rows]):.2f} dB ({d:+.2f} dB)")
