@@ -103,6 +103,15 @@ function estimateText(e) {
 
 const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 
+// What sigma is measured in when the noise was evened out before the method ran: photon noise
+// and a measured brightness curve both map the fitted noise to one unit; channels merely scaled
+// to one level stay in grey levels.
+function stabilisedUnit(model, greyUnit) {
+  if (/Poisson/.test(model)) return 'after evening out photon noise (1 = the fitted photon and read noise)';
+  if (/brightness-dependent/.test(model)) return 'after evening out the noise over brightness (1 = the measured curve)';
+  return `${greyUnit}, each colour channel first scaled to one noise level`;
+}
+
 export class Pane {
   constructor(board, name, settings, app) {
     this.app = app;
@@ -368,8 +377,8 @@ export class Pane {
     const r = this.result;
     const info = this.app.source ? this.app.source.info : {};
     const digits = m.sigma >= 1 ? 2 : 5;
-    const unit = r.report.stabilised ? 'after stabilising photon noise (1 = pure photon noise)'
-      : /float/.test(info.sample || '') ? 'in the file\'s own units' : `grey levels of the ${(info.sample || '').replace(' unsigned', '')} data`;
+    const greyUnit = /float/.test(info.sample || '') ? 'in the file\'s own units' : `grey levels of the ${(info.sample || '').replace(' unsigned', '')} data`;
+    const unit = r.report.stabilised ? stabilisedUnit(r.report.noise.model, greyUnit) : greyUnit;
     return `${fmt(m.sigma, digits)} ${unit} (${m.sigma_estimated ? 'estimated' : 'given'})`;
   }
 
@@ -588,7 +597,9 @@ export class Pane {
       const out = await this.run.promise;
       this.app.download(`${base}-denoised-${this.name}.${out.extension}`, new Blob([out.file]));
       this.saved = true;
-      stage.textContent = units > 1 ? `saved all ${units} images` : 'saved';
+      // The core picks the format (a JPEG or BMP comes back as PNG, so nothing is lost again): say which.
+      const as = `as ${out.extension.toUpperCase()}`;
+      stage.textContent = units > 1 ? `saved all ${units} images ${as}` : `saved ${as}`;
       const shown = this.results.get(src.unit);
       if (shown && shown.rgba && this.app.source === src) { this.result = shown; this.markStale(); this.paint(); await this.measure(); }
     } catch (e) {
