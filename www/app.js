@@ -2,7 +2,7 @@
 // exports results, settings and metrics. All computation runs in workers (tasks.js).
 import { call } from './tasks.js';
 import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize } from './view.js';
-import { Pane } from './panes.js';
+import { Pane, paramColumns } from './panes.js';
 import { runBatch, stopBatch } from './batch.js';
 import { showNoise, hideNoise } from './noiseview.js';
 import { wireSweep } from './sweep.js';
@@ -233,9 +233,8 @@ function wireBatch() {
 // One table of every setting's parameters and metrics: shown under the board, and the CSV.
 function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
-  const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', 'threshold', 'patch_size', 'group_size',
-    'search_radius', 'neighbour_slices', 'slices_joined', 'graph', 'filter', 'strength', 'edge_cut', 'passes',
-    'residual_std_over_sigma', 'residual_lag1_correlation', 'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
+  const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', ...paramColumns.map((c) => c.name),
+    'slices_joined', 'residual_std_over_sigma', 'residual_lag1_correlation', 'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';
   return [['image', ...cols], ...rows.map((r) => [image, ...cols.map((c) => cell(r[c]))])];

@@ -21,9 +21,9 @@ const fields = {
     set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; } },
   'pg-search': { key: 'patch_graph.search_radius' },
   'pg-slices': { key: 'patch_graph.neighbour_slices' },
-  'px-graph': { get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
+  'px-graph': { path: 'pixel_graph.graph', get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
     help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
-  'px-filter': { get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
+  'px-filter': { path: 'pixel_graph.filter', get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
     help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
   'px-strength': { key: 'pixel_graph.strength' },
   'px-cut': { key: 'pixel_graph.cut_threshold' },
@@ -42,6 +42,15 @@ for (const fld of Object.values(fields)) {
   fld.get ||= (s) => getKey(s, fld.key);
   fld.set ||= (s, v) => setKey(s, fld.key, v);
 }
+
+// The parameter columns of the board's table and its CSV: every method's own form field, named by
+// the last part of its settings path, in form order. A method's settings live under its name
+// ('patch_graph.threshold' belongs to 'patch-graph'), so a field is empty for the other method.
+export const paramColumns = Object.values(fields)
+  .map((fld) => fld.path || fld.key)
+  .filter((path) => path && path.includes('.'))
+  .map((path) => ({ name: path.split('.').pop(), method: path.split('.')[0].replace('_', '-'), path }));
+const paramGet = Object.fromEntries(Object.values(fields).filter((f) => f.path || f.key).map((f) => [f.path || f.key, f.get]));
 
 // The method list, and each numeric field's label, limits and help, from the core's tables;
 // hover help on every field, and the same lines listed in the form's "What these settings do".
@@ -343,18 +352,9 @@ export class Pane {
       sigma: round(this.fileSigma(r), 6),
       sigma_estimated: r.report.sigma_was_estimated,
       // The parameters that made the result, so the table and the CSV say what was compared.
-      threshold: st.method === 'patch-graph' ? st.patch_graph.threshold : null,
-      patch_size: st.method === 'patch-graph' ? st.patch_graph.patch_size : null,
-      group_size: st.method === 'patch-graph' ? st.patch_graph.group_size_hard : null,
-      search_radius: st.method === 'patch-graph' ? st.patch_graph.search_radius : null,
-      neighbour_slices: st.method === 'patch-graph' ? st.patch_graph.neighbour_slices : null,
+      ...Object.fromEntries(paramColumns.map((c) => [c.name, c.method === st.method ? paramGet[c.path](st) : null])),
       // Stacks: how many neighbouring slices lent their patches (absent for single images).
       slices_joined: r.report.slices_joined ?? null,
-      graph: st.method === 'pixel-graph' ? st.pixel_graph.graph : null,
-      filter: st.method === 'pixel-graph' ? st.pixel_graph.filter : null,
-      strength: st.method === 'pixel-graph' ? st.pixel_graph.strength : null,
-      edge_cut: st.method === 'pixel-graph' ? st.pixel_graph.cut_threshold : null,
-      passes: st.method === 'pixel-graph' ? st.pixel_graph.passes : null,
       residual_std_over_sigma: round(mean(res.map((x) => x.std_over_sigma)), 4),
       residual_lag1_correlation: round(mean(res.map((x) => x.lag1_autocorrelation)), 4),
       residual_edge_correlation: round(mean(res.map((x) => x.edge_correlation)), 4),

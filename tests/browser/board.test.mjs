@@ -162,6 +162,15 @@ test('the table under the board is what Save metrics writes', async () => {
   const csv = readFileSync(path, 'utf8').trim().split('\n');
   assert.deepEqual(table, csv);
   assert.ok(csv[0].includes('threshold') && csv.length === 3, csv.join('\n'));
+  // Parameter columns carry the settings file's names (README, "Settings") and only the row's
+  // own method fills its columns: pane 0 is patch-graph, pane 1 pixel-graph.
+  const head = csv[0].split(',');
+  const cell = (row, name) => csv[row].split(',')[head.indexOf(name)];
+  for (const name of ['threshold', 'group_size_hard', 'search_radius', 'graph', 'filter', 'cut_threshold', 'passes']) {
+    assert.ok(head.includes(name), `${name} missing from ${csv[0]}`);
+  }
+  assert.deepEqual([cell(1, 'method'), cell(1, 'group_size_hard') !== '', cell(1, 'cut_threshold')], ['patch-graph', true, '']);
+  assert.deepEqual([cell(2, 'method'), cell(2, 'group_size_hard'), cell(2, 'cut_threshold') !== ''], ['pixel-graph', '', true]);
 });
 
 test('at 1920 x 1080 the views of different methods stay in line', async () => {
