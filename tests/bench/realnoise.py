@@ -8,7 +8,8 @@
     The reference is the same pipeline without noise and without JPEG. The same protocol also runs
     on four more colour images (devset.colour_images_more: rows marked "(more)"), with the camera's
     own colour noise reduction (the opponent colour planes blurred by a Gaussian of std 2 before
-    JPEG: rows marked "(colour-smoothed)"), and on an image kept out of tuning
+    JPEG: rows marked "(colour-smoothed)"), made grey (the mean of R, G and B, saved as colour:
+    rows marked "(made grey)"; the reference made grey too), and on an image kept out of tuning
     (devset.colour_checks: rows marked "(check)", plain and colour-smoothed).
 (b) 16-bit scientific frames: offset + gain * Poisson(peak * image) + N(0, read^2), offset 100,
     gain 8 grey levels per photon, read noise 12 grey levels, peaks 30 and 300. The reference is the
@@ -98,19 +99,28 @@ def smooth_colour(rgb8):
     return np.clip(np.rint(o @ OPPONENT), 0, 255).astype(np.uint8)
 
 
+def to_grey(rgb8):
+    """The picture made grey (the mean of R, G and B), still saved as colour, as a grey conversion
+    of a camera's JPEG is."""
+    g = np.rint(rgb8.astype(np.float64).mean(axis=-1)).astype(np.uint8)
+    return np.repeat(g[..., None], 3, axis=-1)
+
+
 def jpeg(rgb8, quality=90):
     buf = pyio.BytesIO()
     Image.fromarray(rgb8).save(buf, format="JPEG", quality=quality)
     return buf.getvalue()
 
 
-def camera_items(work, images=None, finish=None):
+def camera_items(work, images=None, finish=None, reference=None):
     """[(name, shot, clean_png, noisy_jpg)] for `images` (default: the development set's colour
-    images); `finish` (e.g. smooth_colour) is applied to the noisy image before JPEG."""
+    images); `finish` (e.g. smooth_colour) is applied to the noisy image before JPEG, `reference`
+    (e.g. to_grey) to the clean one."""
     os.makedirs(work, exist_ok=True)
     items = []
     for name, img in (images or devset.colour_images()).items():
         clean = camera_pipeline(img, 0, None)
+        clean = reference(clean) if reference else clean
         cp = os.path.join(work, f"{name}-cam-clean.png")
         io.imsave(cp, clean, check_contrast=False)
         for shot in SHOTS:
@@ -170,10 +180,10 @@ def noise_fit(exe, path, *extra):
     return json.loads(subprocess.run([exe, "noise", path, "--json", *extra], capture_output=True, check=True).stdout)
 
 
-def camera_rows(exe, work, images=None, finish=None):
+def camera_rows(exe, work, images=None, finish=None, reference=None):
     """Per image and shot: Patchgraph default, the best tuned peer, and the effective level's error."""
     out = []
-    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera"), images, finish):
+    for name, shot, cp, np_ in camera_items(os.path.join(work, "camera"), images, finish, reference):
         clean = io.imread(cp)
         noisy = np.asarray(Image.open(np_).convert("RGB"))
         # The noise's own std: before JPEG, which removes some of it (fine grain) and adds its own
@@ -233,13 +243,14 @@ def table(exe, work):
     marked = lambda rows, mark: [dict(r, image=f"{r['image']} ({mark})") for r in rows]
     more = marked(camera_rows(exe, os.path.join(work, "more"), devset.colour_images_more()), "more")
     smoothed = marked(camera_rows(exe, os.path.join(work, "smoothed"), None, smooth_colour), "colour-smoothed")
+    grey = marked(camera_rows(exe, os.path.join(work, "grey"), None, to_grey, to_grey), "made grey")
     # Kept out of tuning: the same protocol on an image the noise fit was never tuned on.
     checks = marked(camera_rows(exe, os.path.join(work, "checks"), devset.colour_checks()), "check")
     checks += marked(camera_rows(exe, os.path.join(work, "checks-smoothed"), devset.colour_checks(), smooth_colour),
                      "check, colour-smoothed")
     lines = ["| image | noise | input | Patchgraph (default) | best tuned peer | difference | model chosen | fitted |",
              "|---|---|---|---|---|---|---|---|"]
-    for r in cam + more + smoothed + checks:
+    for r in cam + more + smoothed + grey + checks:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}; "
                      f"{r['in_file']:.2f} in the file) |")
@@ -250,6 +261,7 @@ def table(exe, work):
     summary = []
     for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr), ("camera JPEGs of the four more images", more),
                         ("colour-smoothed camera JPEGs", smoothed),
+                        ("camera JPEGs made grey", grey),
                         ("camera JPEGs of the independent check (not tuned on)", checks)):
         d = np.mean([r["patchgraph"] - r["peer"] for r in rows])
         summary.append(f"{label}: mean {np.mean([r['patchgraph'] for r in rows]):.2f} dB against the best tuned peer's "

@@ -145,16 +145,24 @@ pub fn model_name(dependence: Dependence, correlated: bool) -> String {
 }
 
 /// The plain sentence for a fitted model; `unfit` when too few smooth areas were found to see a
-/// dependence on brightness.
+/// dependence on brightness; `curve_set_aside` when one was seen but the noise is grainy.
 pub fn explain(
     dependence: Dependence,
     correlated: bool,
     unfit: bool,
+    curve_set_aside: bool,
     channels: &[ChannelNoise],
     planes: &[PlaneNoise],
 ) -> String {
     let mut s = String::new();
     match dependence {
+        Dependence::None if curve_set_aside => {
+            let r = channels.iter().map(|c| c.level_function.curve_ratio()).fold(0.0, f64::max);
+            s.push_str(&format!(
+                "The noise's fine grain changes with brightness (its variance by up to {r:.1} times), but in \
+                 grainy noise that fine grain is what compression left, not the noise, so one level is used"
+            ));
+        }
         Dependence::None if unfit => {
             s.push_str("Smooth areas were found at too few brightness levels to see whether the noise changes with brightness, so one level is used")
         }
