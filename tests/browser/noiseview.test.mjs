@@ -28,16 +28,14 @@ function fits16(width, height, value) {
 }
 
 test('the plotted curve is the core\'s curve', () => {
-  // Known construction: std 60 at the dark end falling to 20 at the bright end, on 16 flat steps
-  // of 32 columns (the core's unit test of the curve uses the same shape on a ramp; here steps,
-  // since a ramp this steep, 100 grey levels per pixel, is read as grainy noise by the spectrum:
-  // a known gap, DEVELOPERS.md "Noise spectrum"); a fixed xorshift stream for the noise.
+  // Known construction: std 60 at the dark end falling to 20 at the bright end, on a ramp (the
+  // core's unit test of the curve uses the same shape); a fixed xorshift stream for the noise.
   let s = 0x9e3779b9;
   const uniform = () => { s ^= s << 13; s >>>= 0; s ^= s >>> 17; s ^= s << 5; s >>>= 0; return (s + 0.5) / 4294967296; };
   const normal = () => Math.sqrt(-2 * Math.log(uniform())) * Math.cos(2 * Math.PI * uniform());
   const file = join(mkdtempSync(join(tmpdir(), 'pg-curve-')), 'ramp.fits');
   writeFileSync(file, fits16(512, 512, (x) => {
-    const y = 2000 + 3200 * Math.floor(x / 32);
+    const y = 2000 + 100 * x;
     return y + (60 - (40 * (y - 2000)) / 51100) * normal();
   }));
   const fit = JSON.parse(execFileSync(CLI, ['noise', file, '--json'], { encoding: 'utf8' }));
