@@ -47,10 +47,11 @@ for (const fld of Object.values(fields)) {
 // the last part of its settings path, in form order. A method's settings live under its name
 // ('patch_graph.threshold' belongs to 'patch-graph'), so a field is empty for the other method.
 export const paramColumns = Object.values(fields)
-  .map((fld) => fld.path || fld.key)
-  .filter((path) => path && path.includes('.'))
-  .map((path) => ({ name: path.split('.').pop(), method: path.split('.')[0].replace('_', '-'), path }));
-const paramGet = Object.fromEntries(Object.values(fields).filter((f) => f.path || f.key).map((f) => [f.path || f.key, f.get]));
+  .filter((fld) => (fld.path || fld.key || '').includes('.'))
+  .map((fld) => {
+    const [group, name] = (fld.path || fld.key).split('.');
+    return { name, method: group.replace('_', '-'), get: fld.get };
+  });
 
 // The method list, and each numeric field's label, limits and help, from the core's tables;
 // hover help on every field, and the same lines listed in the form's "What these settings do".
@@ -112,12 +113,12 @@ function estimateText(e) {
 
 const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 
-// What sigma is measured in when the noise was evened out before the method ran: photon noise
-// and a measured brightness curve both map the fitted noise to one unit; channels merely scaled
-// to one level stay in grey levels.
-function stabilisedUnit(model, greyUnit) {
-  if (/Poisson/.test(model)) return 'after evening out photon noise (1 = the fitted photon and read noise)';
-  if (/brightness-dependent/.test(model)) return 'after evening out the noise over brightness (1 = the measured curve)';
+// What sigma is measured in when the noise was evened out before the method ran (the report's
+// channels say how): photon noise and a measured brightness curve both map the fitted noise to
+// one unit; channels merely scaled to one level stay in grey levels.
+function stabilisedUnit(channels, greyUnit) {
+  if (channels.some((c) => c.photon)) return 'after evening out photon noise (1 = the fitted photon and read noise)';
+  if (channels.some((c) => c.curve_used)) return 'after evening out the noise over brightness (1 = the measured curve)';
   return `${greyUnit}, each colour channel first scaled to one noise level`;
 }
 
@@ -352,7 +353,7 @@ export class Pane {
       sigma: round(this.fileSigma(r), 6),
       sigma_estimated: r.report.sigma_was_estimated,
       // The parameters that made the result, so the table and the CSV say what was compared.
-      ...Object.fromEntries(paramColumns.map((c) => [c.name, c.method === st.method ? paramGet[c.path](st) : null])),
+      ...Object.fromEntries(paramColumns.map((c) => [c.name, c.method === st.method ? c.get(st) : null])),
       // Stacks: how many neighbouring slices lent their patches (absent for single images).
       slices_joined: r.report.slices_joined ?? null,
       residual_std_over_sigma: round(mean(res.map((x) => x.std_over_sigma)), 4),
@@ -378,7 +379,7 @@ export class Pane {
     const info = this.app.source ? this.app.source.info : {};
     const digits = m.sigma >= 1 ? 2 : 5;
     const greyUnit = /float/.test(info.sample || '') ? 'in the file\'s own units' : `grey levels of the ${(info.sample || '').replace(' unsigned', '')} data`;
-    const unit = r.report.stabilised ? stabilisedUnit(r.report.noise.model, greyUnit) : greyUnit;
+    const unit = r.report.stabilised ? stabilisedUnit(r.report.noise.channels, greyUnit) : greyUnit;
     return `${fmt(m.sigma, digits)} ${unit} (${m.sigma_estimated ? 'estimated' : 'given'})`;
   }
 
