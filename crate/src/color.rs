@@ -27,6 +27,15 @@ pub fn to_opponent(rgb: &[Plane]) -> Vec<Plane> {
     apply(&OPPONENT, rgb)
 }
 
+/// The luminance opponent plane alone (the first row of [`OPPONENT`], the same arithmetic as
+/// [`to_opponent`]), for a look at the brightness noise without the colour planes.
+pub fn luminance(rgb: &[Plane]) -> Plane {
+    let row = OPPONENT[0];
+    let (r, g, b) = (&rgb[0].data, &rgb[1].data, &rgb[2].data);
+    let data = (0..r.len()).map(|i| row[0] * r[i] + row[1] * g[i] + row[2] * b[i]).collect();
+    Plane { width: rgb[0].width, height: rgb[0].height, data }
+}
+
 /// The inverse of an orthonormal matrix is its transpose.
 pub fn from_opponent(opp: &[Plane]) -> Vec<Plane> {
     let mut t = [[0.0f32; 3]; 3];
@@ -52,6 +61,14 @@ mod tests {
                 assert!((dot - want).abs() < 1e-6, "row {a} . row {b} = {dot}");
             }
         }
+    }
+
+    #[test]
+    fn luminance_is_the_first_opponent_plane_bit_for_bit() {
+        // Invariant: the same row and the same order of operations as the full transform.
+        let p = |k: f32| Plane::from_fn(9, 4, |x, y| (x as f32 * 17.3 + y as f32 * 5.1 + k) % 256.0);
+        let rgb = vec![p(0.0), p(70.0), p(140.0)];
+        assert_eq!(luminance(&rgb).data, to_opponent(&rgb)[0].data);
     }
 
     #[test]

@@ -195,7 +195,12 @@ fn correlated_noise(working: &[Plane], range: f64, settings: &Settings) -> Optio
 /// +0.10, motorcycle -0.02 / -0.09, colour-smoothed motorcycle +0.02 / -0.07. Photon noise
 /// (a straight line) keeps its model.
 fn grainy(channels: &[Plane]) -> bool {
-    opponent_if_colour(channels).first().and_then(|p| spectrum::estimate(p, 8)).is_some_and(|s| s.is_coloured())
+    let luma = match channels {
+        [_, _, _] => Cow::Owned(color::luminance(channels)),
+        [first, ..] => Cow::Borrowed(first),
+        [] => return false,
+    };
+    spectrum::estimate(&luma, 8).is_some_and(|s| s.is_coloured())
 }
 
 /// Colour channels whose white levels differ by more than this factor are scaled to one level

@@ -72,7 +72,8 @@ pub struct PlaneNoise {
 /// Everything said about the noise of one run.
 #[derive(Clone, Debug, PartialEq, Serialize)]
 pub struct NoiseReport {
-    /// "white Gaussian", "Poisson-Gaussian", "correlated Gaussian" or "correlated Poisson-Gaussian".
+    /// The model's name ([`model_name`]): "white Gaussian", "Poisson-Gaussian",
+    /// "brightness-dependent Gaussian", or "correlated ..." of the last two or "Gaussian".
     pub model: String,
     /// True when the model was fitted (`noise: "auto"`), false when the settings named it.
     pub fitted: bool,
