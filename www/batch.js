@@ -16,6 +16,20 @@ export async function runBatch(files, pane, download) {
   if (busy || !files.length) return;
   busy = true;
   stopping = false;
+  try {
+    await runQueue(files, pane, download);
+  } catch (e) {
+    // The results could not be packed (e.g. out of memory for the ZIP): say so, and let the user
+    // start again; the files themselves were never touched.
+    $('batch-summary').textContent = `The batch could not be finished: ${e.message}`;
+  } finally {
+    $('batch-start').disabled = false;
+    $('batch-stop').disabled = true;
+    busy = false;
+  }
+}
+
+async function runQueue(files, pane, download) {
   const list = $('batch-list');
   list.replaceChildren();
   const rows = files.map((f) => {
@@ -96,9 +110,6 @@ export async function runBatch(files, pane, download) {
   const ok = report.filter((r) => r[1]).length - 1;
   $('batch-summary').textContent = `${ok} of ${files.length} files denoised with setting ${pane.name}; the ZIP holds the results, report.csv and settings.json.`;
   download(`patchgraph-batch-${pane.name}.zip`, makeZip(entries));
-  $('batch-start').disabled = false;
-  $('batch-stop').disabled = true;
-  busy = false;
 }
 
 export function stopBatch() {
