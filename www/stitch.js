@@ -92,8 +92,10 @@ function split(bytes, settings, onProgress, end, probe = false) {
         sent += 1;
         const noisy = windowOf(prep.planes, width, b.y0, b.y1);
         const basicWin = basic ? windowOf(basic, width, b.y0, b.y1) : new Float32Array(0);
-        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), spectra: prep.spectra, noisy, basic: basicWin },
-          [noisy.buffer, basicWin.buffer], (f) => { part[i] = f; report(); })
+        // The first stage's matching guide (correlated noise only), cut like the planes.
+        const guide = !basic && prep.guide ? windowOf([prep.guide], width, b.y0, b.y1) : new Float32Array(0);
+        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), spectra: prep.spectra, noisy, basic: basicWin, guide },
+          [noisy.buffer, basicWin.buffer, guide.buffer], (f) => { part[i] = f; report(); })
           .then((r) => {
             if (failed) return;
             part[i] = 1;

@@ -44,7 +44,7 @@ export function installWorker(pg, ready, build) {
         case 'assemblerFinish': r = { planes: assembler.finish() }; assembler = null; break;
         case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, maxMegapixels) }; break;
         case 'band':
-          r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, progress);
+          r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, m.guide, progress);
           break;
         case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, maxMegapixels); break;
         case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, maxMegapixels)); break;

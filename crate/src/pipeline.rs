@@ -149,7 +149,7 @@ fn limit_luma(spectra: &mut [NoiseSpectrum]) -> Option<(f64, f64)> {
     if chroma < MIN_CHROMA_SHARE * l || l <= limit {
         return None;
     }
-    *luma = luma.scaled_to(limit * limit);
+    *luma = NoiseSpectrum { texture_suspected: true, ..luma.scaled_to(limit * limit) };
     Some((l, limit))
 }
 

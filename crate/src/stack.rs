@@ -11,7 +11,7 @@
 //! window of slices: memory is a few slices, whatever the stack's depth.
 
 use crate::error::{Error, Result};
-use crate::methods::patch_graph::{run_stage, Stage};
+use crate::methods::patch_graph::{matching_guide, run_stage, Stage};
 use crate::methods::MethodOutput;
 use crate::pipeline::{self, Prepared, RunOutput};
 use crate::planes::{Image, Plane};
@@ -237,7 +237,18 @@ fn run_slice_stage(
     let context = near.iter().map(|s| s.planes.as_slice()).collect();
     let bases = if second { near.iter().map(|s| first(s)).collect::<Result<Vec<_>>>()? } else { Vec::new() };
     let spectra = p.spectra();
+    // Stage 1 under correlated noise matches on whitened planes, the neighbours' whitened by the
+    // own slice's spectrum so that all compare alike.
+    let guides: Vec<Plane> = match (second, matching_guide(&own.planes, spectra.as_deref())) {
+        (false, Some(g)) => std::iter::once(Ok(g))
+            .chain(near.iter().map(|s| {
+                matching_guide(&s.planes, spectra.as_deref())
+                    .ok_or_else(|| Error::Internal("a neighbouring slice has no matching guide".into()))
+            }))
+            .collect::<Result<_>>()?,
+        _ => Vec::new(),
+    };
     let stage =
         Stage::new(&own.planes, basic, 0, own.img.height, p.sigma, p.range, &settings.patch_graph, spectra.as_deref())?;
-    run_stage(&stage.with_slices(context, bases)?, progress)
+    run_stage(&stage.with_slices(context, bases)?.with_guides(guides.iter().collect())?, progress)
 }

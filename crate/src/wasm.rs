@@ -4,7 +4,7 @@
 
 use crate::file::{self, DecodeLimits, Document, Format, Provenance};
 use crate::methods::bands::{self, Band};
-use crate::methods::patch_graph::Stage;
+use crate::methods::patch_graph::{matching_guide, Stage};
 use crate::methods::MethodOutput;
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::Accumulator;
@@ -396,6 +396,9 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe
     set(&obj, "sigma", &JsValue::from_f64(sigma))?;
     set(&obj, "range", &JsValue::from_f64(range))?;
     set(&obj, "planes", &plane_arrays(&planes).into())?;
+    // Correlated noise: what the first stage's matching compares (null: the luminance itself).
+    let guide = if plan.is_empty() { None } else { matching_guide(&planes, spectra.as_deref()) };
+    set(&obj, "guide", &guide.map_or(JsValue::NULL, |g| Float32Array::from(g.data.as_slice()).into()))?;
     set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| internal(e.to_string()))?))?;
     // Correlated noise: the spectra every band needs, as JSON ("null" for white noise).
     set(&obj, "spectra", &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| internal(e.to_string()))?))?;
@@ -403,8 +406,9 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe
 }
 
 /// One band of one stage: `noisy` (and for stage 2 `basic`, else empty) hold the band's window,
-/// rows [y0, y1) of every plane end to end; `spectra` is what [`prepare_run`] gave. Returns the
-/// band's sums, {num (planes end to end), den}.
+/// rows [y0, y1) of every plane end to end; `spectra` is what [`prepare_run`] gave, and `guide`
+/// (stage 1, else empty) the same window of its guide. Returns the band's sums, {num (planes end
+/// to end), den}.
 #[wasm_bindgen(js_name = runBand)]
 #[allow(clippy::too_many_arguments)]
 pub fn run_band(
@@ -417,6 +421,7 @@ pub fn run_band(
     spectra: &str,
     noisy: &[f32],
     basic: &[f32],
+    guide: &[f32],
     on_progress: &Function,
 ) -> Result<JsValue, JsError> {
     let settings = Settings::from_json(settings_json).map_err(js_err)?;
@@ -427,6 +432,7 @@ pub fn run_band(
     let (w, rows) = (width as usize, band.y1 - band.y0);
     let noisy = unflatten(noisy, w, rows)?;
     let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
+    let guide = if guide.is_empty() { Vec::new() } else { unflatten(guide, w, rows)? };
     let spectra: Option<Vec<NoiseSpectrum>> =
         serde_json::from_str(spectra).map_err(|_| internal("the noise spectra sent to the worker are not valid"))?;
     let stage = Stage::new(
@@ -439,6 +445,7 @@ pub fn run_band(
         &settings.patch_graph,
         spectra.as_deref(),
     )
+    .and_then(|s| s.with_guides(guide.iter().collect()))
     .map_err(js_err)?;
     let acc = stage.run_band(&band, &JsProgress(on_progress)).map_err(js_err)?;
     let all: Vec<f64> = acc.num.iter().flat_map(|n| n.iter().copied()).collect();

@@ -35,8 +35,9 @@ test('errors arrive as exceptions with the plain message', () => {
   assert.throws(() => pg.denoise(sample, '{"bogus": 1}', 64, () => {}), /not valid/);
 });
 
-// A valid grey 8-bit PNG of w x h zeros (ISO/IEC 15948: signature, IHDR, zlib IDAT, IEND, CRC-32).
-function blankPng(w, h) {
+// A valid grey 8-bit PNG of w x h pixels, zeros or `pixels` (ISO/IEC 15948: signature, IHDR, zlib
+// IDAT with filter byte 0 per row, IEND, CRC-32).
+function greyPng(w, h, pixels = null) {
   const chunk = (type, data) => {
     const body = Buffer.concat([Buffer.from(type, 'latin1'), data]);
     const len = Buffer.alloc(4); len.writeUInt32BE(data.length);
@@ -46,19 +47,61 @@ function blankPng(w, h) {
   const ihdr = Buffer.alloc(13);
   ihdr.writeUInt32BE(w, 0); ihdr.writeUInt32BE(h, 4); ihdr[8] = 8; ihdr[9] = 0;
   return Buffer.concat([Buffer.from([0x89, 0x50, 0x4e, 0x47, 0x0d, 0x0a, 0x1a, 0x0a]), chunk('IHDR', ihdr),
-    chunk('IDAT', deflateSync(Buffer.alloc((w + 1) * h))), chunk('IEND', Buffer.alloc(0))]);
+    chunk('IDAT', deflateSync(rows(w, h, pixels))), chunk('IEND', Buffer.alloc(0))]);
+}
+
+function rows(w, h, pixels) {
+  const raw = Buffer.alloc((w + 1) * h);
+  if (pixels) for (let y = 0; y < h; y += 1) raw.set(pixels.subarray(y * w, (y + 1) * w), y * (w + 1) + 1);
+  return raw;
+}
+
+// A smooth scene with grainy noise: white noise (a fixed xorshift sequence, Box-Muller) filtered
+// by [1 2 1] / 4 each way, as resampling or demosaicing leaves it.
+function grainyPng(n) {
+  let s = 2463534242;
+  const uniform = () => { s ^= s << 13; s >>>= 0; s ^= s >>> 17; s ^= s << 5; s >>>= 0; return (s + 0.5) / 4294967296; };
+  const white = Array.from({ length: (n + 2) * (n + 2) }, () => 20 * Math.sqrt(-2 * Math.log(uniform())) * Math.cos(2 * Math.PI * uniform()));
+  const a = [0.25, 0.5, 0.25];
+  const px = new Uint8Array(n * n);
+  for (let y = 0; y < n; y += 1) {
+    for (let x = 0; x < n; x += 1) {
+      let v = 100 + 50 * Math.sin(x / 17) * Math.cos(y / 23);
+      for (let i = 0; i < 3; i += 1) for (let j = 0; j < 3; j += 1) v += a[i] * a[j] * white[(y + i) * (n + 2) + x + j];
+      px[y * n + x] = Math.max(0, Math.min(255, Math.round(v)));
+    }
+  }
+  return greyPng(n, n, px);
 }
 
 test('the pixel-graph method refuses images too large for one worker, with the reason', () => {
   // 4001 x 4000 = 16.004 megapixels, just over the page's limit of 16.
-  const png = blankPng(4001, 4000);
+  const png = greyPng(4001, 4000);
   assert.equal(pg.open(png, 64).width, 4001);
   assert.throws(() => pg.denoise(png, '{"method": "pixel-graph"}', 64, () => {}), /too large for the pixel-graph method in the page/);
 });
 
+// What www/stitch.js does, here on one wasm instance: each band of a stage run (in reverse order)
+// and its sums fed to the core's BandAssembler; the first stage's bands get their window of the
+// matching guide, as stitch.js sends it.
+function splitStage(prep, basic, settings) {
+  const { width: w, height: h } = prep;
+  const own = JSON.parse(prep.bands);
+  // None for a probe pass that cannot give an estimate.
+  if (!own.length) return prep.planes[0];
+  const asm = new pg.BandAssembler(prep.bands, w, h, prep.planes);
+  for (let i = own.length - 1; i >= 0; i -= 1) {
+    const b = own[i];
+    const win = (p) => (p ? p.slice(b.y0 * w, b.y1 * w) : new Float32Array(0));
+    const r = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), prep.spectra, win(prep.planes[0]), win(basic),
+      basic ? new Float32Array(0) : win(prep.guide), () => {});
+    asm.add(i, r.num, r.den);
+  }
+  return asm.finish()[0];
+}
+
 test('the split run gives the whole-image result: prepare, bands in any order, finish', () => {
-  // What www/stitch.js does, here on one wasm instance: the bands run in reverse order and their
-  // sums fed to the core's BandAssembler; invariant: equal to one 'denoise' call.
+  // Invariant: the bands' sums, assembled, equal one 'denoise' call.
   const settings = '{"method": "patch-graph"}';
   const whole = pg.denoise(sample, settings, 64, () => {});
   const prep = pg.prepareRun(sample, settings, 64, false);
@@ -66,31 +109,19 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   assert.equal(prep.planes.length, 1);
   assert.ok(bands.length >= 3, `${bands.length} bands`);
   const { width: w, height: h } = prep;
-  // Each preparation's own bands (none for a probe pass that cannot give an estimate).
-  const stage = (prep, basic) => {
-    const own = JSON.parse(prep.bands);
-    if (!own.length) return prep.planes[0];
-    const asm = new pg.BandAssembler(prep.bands, w, h, prep.planes);
-    for (let i = own.length - 1; i >= 0; i -= 1) {
-      const b = own[i];
-      const win = (p) => (p ? p.slice(b.y0 * w, b.y1 * w) : new Float32Array(0));
-      const r = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b), prep.spectra, win(prep.planes[0]), win(basic), () => {});
-      asm.add(i, r.num, r.den);
-    }
-    return asm.finish()[0];
-  };
+  const stage = (p, basic) => splitStage(p, basic, settings);
   // The assembler refuses sums that do not fit their band, and a band given twice.
   const check = new pg.BandAssembler(prep.bands, w, h, prep.planes);
   assert.throws(() => check.add(0, new Float64Array(3), new Float64Array(3)), /do not match its size/);
   const b0 = bands[0];
-  const sums0 = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b0), prep.spectra, prep.planes[0].slice(b0.y0 * w, b0.y1 * w), new Float32Array(0), () => {});
+  const sums0 = pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(b0), prep.spectra, prep.planes[0].slice(b0.y0 * w, b0.y1 * w), new Float32Array(0), new Float32Array(0), () => {});
   check.add(0, sums0.num.slice(), sums0.den.slice());
   assert.throws(() => check.add(0, sums0.num, sums0.den), /does not fit its place/);
   const basic = stage(prep, null);
   const final = stage(prep, basic);
   const r = pg.finishRun(sample, settings, [final], 64);
   assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
-  assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), prep.spectra, new Float32Array(10), new Float32Array(0), () => {}),
+  assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, JSON.stringify(bands[1]), prep.spectra, new Float32Array(10), new Float32Array(0), new Float32Array(0), () => {}),
     /do not match the image size/);
   // The error estimate split the same way (the probe's input prepared, its bands run, the estimate
   // from both passes' planes) equals the one-call estimate: invariant, same arithmetic.
@@ -101,4 +132,23 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   assert.deepEqual(split, oneCall);
   // The sample's dark background is cut off at 0 over most of the image: the estimate says so.
   assert.ok(!split.applies && /cut off at black/.test(split.note), JSON.stringify(split));
+});
+
+test('grainy noise: the split run gets the matching guide and still gives the whole-image result', () => {
+  // The first stage matches on a whitened plane the core prepares once for the whole image; the
+  // bands get their rows of it. Invariant: bands and assembler give the one-call result.
+  const png = grainyPng(160);
+  const settings = '{"method": "patch-graph"}';
+  const whole = pg.denoise(png, settings, 64, () => {});
+  assert.match(JSON.parse(whole.report).noise.model, /correlated/);
+  const prep = pg.prepareRun(png, settings, 64, false);
+  assert.ok(prep.guide instanceof Float32Array && prep.guide.length === prep.width * prep.height);
+  assert.ok(JSON.parse(prep.bands).length >= 2);
+  const final = splitStage(prep, splitStage(prep, null, settings), settings);
+  const r = pg.finishRun(png, settings, [final], 64);
+  assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
+  // Without its guide the first stage matches on the noisy plane, and the result differs.
+  const unguided = { ...prep, guide: null };
+  const other = pg.finishRun(png, settings, [splitStage(prep, splitStage(unguided, null, settings), settings)], 64);
+  assert.ok(!Buffer.from(other.file).equals(Buffer.from(whole.file)));
 });

@@ -333,6 +333,9 @@ pub struct Stage<'a> {
     /// 2), whose patches join the groups but are not written: see [`Stage::with_slices`].
     context: Vec<&'a [Plane]>,
     context_basic: Vec<&'a [Plane]>,
+    /// Stage 1 under correlated noise: what matching compares instead of the noisy luminance
+    /// (own slice first, then the neighbours; empty: the luminance itself). See [`matching_guide`].
+    guides: Vec<&'a Plane>,
 }
 
 impl<'a> Stage<'a> {
@@ -395,6 +398,7 @@ impl<'a> Stage<'a> {
             lf_var,
             context: Vec::new(),
             context_basic: Vec::new(),
+            guides: Vec::new(),
         })
     }
 
@@ -413,6 +417,18 @@ impl<'a> Stage<'a> {
         }
         self.context = noisy;
         self.context_basic = basic;
+        Ok(self)
+    }
+
+    /// Stage 1: matching compares these planes (the same rows as the stage's, own slice first,
+    /// then one per neighbouring slice) instead of the noisy luminance; see [`matching_guide`].
+    pub fn with_guides(mut self, guides: Vec<&'a Plane>) -> Result<Self> {
+        let own = &self.noisy[0];
+        let fits = guides.iter().all(|g| g.width == own.width && g.height == own.height);
+        if !guides.is_empty() && (self.basic.is_some() || guides.len() != 1 + self.context.len() || !fits) {
+            return Err(Error::Internal("the matching guides do not line up with the stage's planes".into()));
+        }
+        self.guides = guides;
         Ok(self)
     }
 
@@ -461,7 +477,12 @@ impl<'a> Stage<'a> {
         let noisy: Vec<Vec<Plane>> = std::iter::once(self.noisy).chain(self.context.iter().copied()).map(cut).collect();
         let basic: Option<Vec<Vec<Plane>>> =
             self.basic.map(|b| std::iter::once(b).chain(self.context_basic.iter().copied()).map(cut).collect());
-        let guides: Vec<&Plane> = basic.as_ref().unwrap_or(&noisy).iter().map(|set| &set[0]).collect();
+        let guide_crops: Vec<Plane> = self.guides.iter().map(|g| crop(g, x0, wy, cw, ch)).collect();
+        let guides: Vec<&Plane> = if guide_crops.is_empty() {
+            basic.as_ref().unwrap_or(&noisy).iter().map(|set| &set[0]).collect()
+        } else {
+            guide_crops.iter().collect()
+        };
         let local: Vec<(usize, usize)> = refs.iter().map(|&(x, y)| (x - x0, y - y0)).collect();
         let mp = MatchParams {
             patch: k,
@@ -679,6 +700,14 @@ impl<'a> Stage<'a> {
     }
 }
 
+/// What stage-1 matching compares under correlated noise: the luminance (the first plane) with its
+/// noise whitened by its spectrum where the area is calm (see [`crate::patch::guide`]); None for
+/// white noise or a spectrum that calls for no whitening. Computed on the whole image, so every
+/// band and tile reads the same values.
+pub fn matching_guide(planes: &[Plane], spectra: Option<&[NoiseSpectrum]>) -> Option<Plane> {
+    crate::patch::guide::matching_guide(planes.first()?, spectra?.first()?)
+}
+
 /// Runs one stage over the whole image band by band, assembling rows as soon as no later band
 /// can add to them, so only a few bands' accumulators exist at once.
 pub fn run_stage(stage: &Stage, progress: &dyn Progress) -> Result<Vec<Plane>> {
@@ -705,7 +734,9 @@ pub fn denoise(
     if sigma <= 0.0 {
         return Ok(MethodOutput { planes: planes.to_vec(), cut_map: None, work_units: 0 });
     }
-    let stage1 = Stage::new(planes, None, 0, first.height, sigma, max_value, s, spectra)?;
+    let guide = matching_guide(planes, spectra);
+    let stage1 =
+        Stage::new(planes, None, 0, first.height, sigma, max_value, s, spectra)?.with_guides(guide.iter().collect())?;
     let basic = run_stage(&stage1, &SubProgress { parent: progress, start: 0.0, span: 0.45 })?;
     let stage2 = Stage::new(planes, Some(&basic), 0, first.height, sigma, max_value, s, spectra)?;
     let out = run_stage(&stage2, &SubProgress { parent: progress, start: 0.45, span: 0.55 })?;

@@ -28,6 +28,10 @@ pub struct NoiseSpectrum {
     /// The low/high ring ratio of the per-coefficient medians: texture left in a minority of the
     /// flat blocks moves means but hardly medians, so both must show correlation.
     pub median_ratio: f64,
+    /// The level was lowered to what the colour planes' noise allows (a luminance spectrum far
+    /// above it holds texture read as noise), so the spectrum's shape is likely texture's too.
+    #[serde(default)]
+    pub texture_suspected: bool,
 }
 
 /// A spectrum whose low-frequency ring is this many times its high-frequency ring is treated as
@@ -64,7 +68,7 @@ const MAX_BLOCKS: usize = 40_000;
 impl NoiseSpectrum {
     /// White noise of `variance` in every coefficient.
     pub fn white(k: usize, variance: f64) -> Self {
-        NoiseSpectrum { k, variances: vec![variance; k * k], blocks: 0, median_ratio: 1.0 }
+        NoiseSpectrum { k, variances: vec![variance; k * k], blocks: 0, median_ratio: 1.0, texture_suspected: false }
     }
 
     /// The pixel-domain variance (Parseval: the mean over an orthonormal transform's coefficients).
@@ -258,7 +262,7 @@ pub fn estimate(p: &Plane, k: usize) -> Option<NoiseSpectrum> {
     let (v01, v10, v11) = (variances[1], variances[k], variances[k + 1]);
     let dc = v01 * v10 / v11.max(1e-300);
     variances[0] = dc.clamp(v01.min(v10), 2.0 * v01.max(v10));
-    Some(NoiseSpectrum { k, variances, blocks: n, median_ratio })
+    Some(NoiseSpectrum { k, variances, blocks: n, median_ratio, texture_suspected: false })
 }
 
 #[cfg(test)]

@@ -2,6 +2,7 @@
 //! within a patch, graph Fourier basis across the group) and weighted aggregation.
 
 pub mod aggregate;
+pub mod guide;
 pub mod matching;
 pub mod transform;
 
