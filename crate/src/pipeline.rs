@@ -576,7 +576,9 @@ pub fn residual_view_sigma(img: &Image, report: &RunReport) -> f64 {
 pub fn group_at(img: &Image, settings: &Settings, x: usize, y: usize) -> Result<(Group, usize)> {
     let p = prepare(img, settings)?;
     let luma = method_planes(&p).swap_remove(0);
+    let spectra = p.spectra();
     let s = &settings.patch_graph;
-    let group = methods::patch_graph::group_at(&luma, p.sigma, p.luma_level(), p.range, s, x, y)?;
+    let spectrum = spectra.as_ref().and_then(|sp| sp.first());
+    let group = methods::patch_graph::group_at(&luma, spectrum, p.sigma, p.luma_level(), p.range, s, x, y)?;
     Ok((group, methods::patch_graph::profile(s, p.sigma * 255.0 / p.range).patch))
 }

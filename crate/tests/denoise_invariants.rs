@@ -162,7 +162,7 @@ fn the_group_of_a_clicked_pixel_covers_it_and_is_ranked() {
     let n = noise(w * h, 8.0, 3);
     let p = Plane::from_fn(w, h, |x, y| if (x / 6) % 2 == 0 { 70.0 } else { 170.0 } + n[y * w + x]);
     let s = patchgraph::settings::PatchGraphSettings::default();
-    let g = patchgraph::methods::patch_graph::group_at(&p, 8.0, 8.0, 255.0, &s, 30, 20).unwrap();
+    let g = patchgraph::methods::patch_graph::group_at(&p, None, 8.0, 8.0, 255.0, &s, 30, 20).unwrap();
     let (rx, ry) = g.positions[0];
     assert!(rx <= 30 && 30 < rx + 8 && ry <= 20 && 20 < ry + 8);
     assert_eq!(g.similarity[0], 1.0);

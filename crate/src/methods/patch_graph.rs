@@ -745,10 +745,14 @@ pub fn denoise(
 }
 
 /// Inspection: the stage-1 group of the reference patch nearest to pixel (x, y) whose square covers
-/// it, matched on the luminance plane as a run would (`luma_sigma`: the luminance noise level,
-/// which differs from the run's `sigma` for correlated noise). Positions are in image coordinates.
+/// it, matched on the luminance plane as a run would (`spectrum`: its noise spectrum, None for
+/// white noise; with one, matching reads the whitened guide, [`matching_guide`]; `luma_sigma`: the
+/// luminance noise level, which differs from the run's `sigma` for correlated noise). Positions
+/// are in image coordinates.
+#[allow(clippy::too_many_arguments)]
 pub fn group_at(
     luma: &Plane,
+    spectrum: Option<&NoiseSpectrum>,
     sigma: f64,
     luma_sigma: f64,
     max_value: f64,
@@ -778,10 +782,21 @@ pub fn group_at(
         noise_var: luma_sigma * luma_sigma,
         step: prof.step,
     };
-    let groups = match_groups(luma, &[(rx, ry)], &mp, &crate::progress::NoProgress)?;
+    // Matched where a run matches: on the whitened guide under grainy noise.
+    let guide = spectrum.and_then(|sp| crate::patch::guide::matching_guide(luma, sp));
+    let groups = match_groups(guide.as_ref().unwrap_or(luma), &[(rx, ry)], &mp, &crate::progress::NoProgress)?;
     let mut g = groups.into_iter().next().ok_or_else(|| Error::Internal("matching returned no group".into()))?;
-    // The patches stage 1 keeps, as a run decides (white noise of `sigma` assumed here).
-    let stage = Stage::new(std::slice::from_ref(luma), None, 0, luma.height, sigma, max_value, s, None)?;
+    // The patches stage 1 keeps, as a run decides.
+    let stage = Stage::new(
+        std::slice::from_ref(luma),
+        None,
+        0,
+        luma.height,
+        sigma,
+        max_value,
+        s,
+        spectrum.map(std::slice::from_ref),
+    )?;
     let planes = [vec![luma.clone()]];
     let n = stage.keep_count(&TileSpectra::uncached(&planes, k), &g, true);
     g.truncate(n);
