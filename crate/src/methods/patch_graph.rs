@@ -701,9 +701,9 @@ impl<'a> Stage<'a> {
 }
 
 /// What stage-1 matching compares under correlated noise: the luminance (the first plane) with its
-/// noise whitened by its spectrum where the area is calm (see [`crate::patch::guide`]); None for
-/// white noise or a spectrum that calls for no whitening. Computed on the whole image, so every
-/// band and tile reads the same values.
+/// noise half whitened by its spectrum where the area is calm (see [`crate::patch::guide`]); None
+/// for white noise (no spectrum) or an image smaller than a block. Computed on the whole image, so
+/// every band and tile reads the same values.
 pub fn matching_guide(planes: &[Plane], spectra: Option<&[NoiseSpectrum]>) -> Option<Plane> {
     crate::patch::guide::matching_guide(planes.first()?, spectra?.first()?)
 }

@@ -36,7 +36,7 @@ const STRUCTURE_FROM: f64 = 3.0;
 const CALM_RADIUS: usize = 4;
 
 /// How strongly to whiten for this spectrum, 0 to 1 (the exponent of the gains).
-pub fn whitening_strength(spectrum: &NoiseSpectrum) -> f64 {
+fn whitening_strength(spectrum: &NoiseSpectrum) -> f64 {
     if spectrum.texture_suspected {
         STRENGTH * SUSPECT_SHARE
     } else {
