@@ -9,7 +9,8 @@
     on four more colour images (devset.colour_images_more: rows marked "(more)"), with the camera's
     own colour noise reduction (the opponent colour planes blurred by a Gaussian of std 2 before
     JPEG: rows marked "(colour-smoothed)"), made grey (the mean of R, G and B, saved as colour:
-    rows marked "(made grey)"; the reference made grey too), and on an image kept out of tuning
+    rows marked "(made grey)" and "(more, made grey)"; the reference made grey too), and on an
+    image kept out of tuning
     (devset.colour_checks: rows marked "(check)", plain and colour-smoothed).
 (b) 16-bit scientific frames: offset + gain * Poisson(peak * image) + N(0, read^2), offset 100,
     gain 8 grey levels per photon, read noise 12 grey levels, peaks 30 and 300. The reference is the
@@ -288,6 +289,9 @@ def table(exe, work):
     more = marked(camera_rows(exe, os.path.join(work, "more"), devset.colour_images_more()), "more")
     smoothed = marked(camera_rows(exe, os.path.join(work, "smoothed"), None, smooth_colour), "colour-smoothed")
     grey = marked(camera_rows(exe, os.path.join(work, "grey"), None, to_grey, to_grey), "made grey")
+    # Grey pictures have no colour planes to tell texture from noise: the four more images made grey.
+    grey_more = marked(camera_rows(exe, os.path.join(work, "grey-more"), devset.colour_images_more(), to_grey, to_grey),
+                       "more, made grey")
     # Kept out of tuning: the same protocol on an image the noise fit was never tuned on.
     checks = marked(camera_rows(exe, os.path.join(work, "checks"), devset.colour_checks()), "check")
     checks += marked(camera_rows(exe, os.path.join(work, "checks-smoothed"), devset.colour_checks(), smooth_colour),
@@ -295,7 +299,7 @@ def table(exe, work):
     grainy = grainy_rows(exe, os.path.join(work, "grainy"))
     lines = ["| image | noise | input | Patchgraph (default) | best tuned peer | difference | model chosen | fitted |",
              "|---|---|---|---|---|---|---|---|"]
-    for r in cam + more + smoothed + grey + checks + grainy:
+    for r in cam + more + smoothed + grey + grey_more + checks + grainy:
         lines.append(f"| {r['image']} | {r['noise']} | {r['input']:.2f} | {r['patchgraph']:.2f} | {r['peer']:.2f} ({r['peer_name']}) | "
                      f"{r['patchgraph'] - r['peer']:+.2f} | {r['model']} | level {r['level']:.2f} (true {r['true_std']:.2f}; "
                      f"{r['in_file']:.2f} in the file) |")
@@ -307,6 +311,7 @@ def table(exe, work):
     for label, rows in (("camera JPEGs", cam), ("16-bit frames", fr), ("camera JPEGs of the four more images", more),
                         ("colour-smoothed camera JPEGs", smoothed),
                         ("camera JPEGs made grey", grey),
+                        ("camera JPEGs of the four more images made grey", grey_more),
                         ("camera JPEGs of the independent check (not tuned on)", checks),
                         ("grainy noise made here", grainy)):
         d = np.mean([r["patchgraph"] - r["peer"] for r in rows])
