@@ -100,3 +100,39 @@ fn grainy_noise_that_changes_with_brightness_is_filtered_at_one_level() {
     };
     assert!(mse(&out.channels[0]) < 0.5 * mse(&noisy), "result {} input {}", mse(&out.channels[0]), mse(&noisy));
 }
+
+#[test]
+fn grey_texture_filling_a_grey_picture_is_held_to_its_fine_grain() {
+    // The same texture in a grey picture, which has no colour planes to check against: the
+    // grainy level is held to 10 times the fine grain of the calmest blocks (the rule,
+    // FINE_GRAIN_LIMIT in pipeline.rs), the level used is the limited one, and the sentence says
+    // what was measured. Known gap: this 3 x 3 box-summed noise keeps little fine grain, so the
+    // limit (7.7 for a true 3) still over-reads it and the result is worse than the input; the
+    // bench's camera JPEGs made grey keep more (there the limit brings the tissue from 7 dB
+    // below its input to 1.6 below).
+    let mut rng = Rng::new(11);
+    let waves: Vec<(f64, f64, f64)> =
+        (0..40).map(|_| (rng.range(0.3, 1.2), rng.range(0.0, 6.3), rng.range(0.0, 6.3))).collect();
+    let base = move |x: usize, y: usize| {
+        let s: f64 = waves.iter().map(|(f, a, p)| (f * (x as f64 * a.cos() + y as f64 * a.sin()) + p).sin()).sum();
+        128.0 + 4.0 * s
+    };
+    let n = grainy(256, 256, 3.0, &mut Rng::new(5));
+    let grey = |noise: f64| Image {
+        width: 256,
+        height: 256,
+        depth: BitDepth::Eight,
+        channels: vec![Plane::from_fn(256, 256, |x, y| {
+            (base(x, y) + noise * n[y * 256 + x]).round().clamp(0.0, 255.0) as f32
+        })],
+        alpha: None,
+    };
+    let (l, sentence) = levels(&grey(1.0));
+    let taken = |word: &str| -> f64 {
+        let at = sentence.find(word).map(|i| i + word.len()).unwrap_or(sentence.len());
+        sentence[at..].split([' ', ',']).find_map(|t| t.parse().ok()).unwrap_or(f64::NAN)
+    };
+    let (measured, used) = (taken("measured "), taken("taken as "));
+    assert!(sentence.contains("times its fine grain"), "{sentence}");
+    assert!(used < measured && (used - l[0]).abs() <= 0.05 + 0.01 * l[0], "{l:?} {sentence}");
+}
