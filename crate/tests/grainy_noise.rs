@@ -33,6 +33,18 @@ fn picture(w: usize, h: usize, base: &dyn Fn(usize, usize) -> f64, std: f64, see
     Image { width: w, height: h, depth: BitDepth::Eight, channels, alpha: None }
 }
 
+/// Fine texture everywhere (no flat area): 40 plane waves of random frequency, direction and
+/// phase, amplitude 4 each, about mid-grey.
+fn texture() -> impl Fn(usize, usize) -> f64 {
+    let mut rng = Rng::new(11);
+    let waves: Vec<(f64, f64, f64)> =
+        (0..40).map(|_| (rng.range(0.3, 1.2), rng.range(0.0, 6.3), rng.range(0.0, 6.3))).collect();
+    move |x: usize, y: usize| {
+        let s: f64 = waves.iter().map(|(f, a, p)| (f * (x as f64 * a.cos() + y as f64 * a.sin()) + p).sin()).sum();
+        128.0 + 4.0 * s
+    }
+}
+
 fn levels(img: &Image) -> (Vec<f64>, String) {
     let fit = pipeline::fit_noise(img, &Settings::default()).unwrap();
     (fit.report.planes.iter().map(|p| p.level).collect(), fit.report.sentence)
@@ -56,13 +68,7 @@ fn grey_texture_filling_the_picture_is_not_read_as_luminance_noise() {
     // luminance level is held to 3.5 times the colour noise (the rule), and the sentence says what
     // was measured. Invariant: the result is closer to the clean picture than the input is
     // (reading the texture as noise, at 10 times the true level, made it worse than the input).
-    let mut rng = Rng::new(11);
-    let waves: Vec<(f64, f64, f64)> =
-        (0..40).map(|_| (rng.range(0.3, 1.2), rng.range(0.0, 6.3), rng.range(0.0, 6.3))).collect();
-    let base = move |x: usize, y: usize| {
-        let s: f64 = waves.iter().map(|(f, a, p)| (f * (x as f64 * a.cos() + y as f64 * a.sin()) + p).sin()).sum();
-        128.0 + 4.0 * s
-    };
+    let base = texture();
     let img = picture(256, 256, &base, 3.0, 5);
     let (l, sentence) = levels(&img);
     let chroma = (l[1] * l[2]).sqrt();
@@ -110,13 +116,7 @@ fn grey_texture_filling_a_grey_picture_is_held_to_its_fine_grain() {
     // limit (7.7 for a true 3) still over-reads it and the result is worse than the input; the
     // bench's camera JPEGs made grey keep more (there the limit brings the tissue from 7 dB
     // below its input to 1.6 below).
-    let mut rng = Rng::new(11);
-    let waves: Vec<(f64, f64, f64)> =
-        (0..40).map(|_| (rng.range(0.3, 1.2), rng.range(0.0, 6.3), rng.range(0.0, 6.3))).collect();
-    let base = move |x: usize, y: usize| {
-        let s: f64 = waves.iter().map(|(f, a, p)| (f * (x as f64 * a.cos() + y as f64 * a.sin()) + p).sin()).sum();
-        128.0 + 4.0 * s
-    };
+    let base = texture();
     let n = grainy(256, 256, 3.0, &mut Rng::new(5));
     let grey = |noise: f64| Image {
         width: 256,
