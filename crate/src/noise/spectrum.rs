@@ -28,8 +28,9 @@ pub struct NoiseSpectrum {
     /// The low/high ring ratio of the per-coefficient medians: texture left in a minority of the
     /// flat blocks moves means but hardly medians, so both must show correlation.
     pub median_ratio: f64,
-    /// The level was lowered to what the colour planes' noise allows (a luminance spectrum far
-    /// above it holds texture read as noise), so the spectrum's shape is likely texture's too.
+    /// The level was lowered to what the colour planes' noise or the plane's own fine grain allows
+    /// (a spectrum far above either holds texture read as noise), so its shape is likely texture's
+    /// too.
     #[serde(default)]
     pub texture_suspected: bool,
 }

@@ -23,8 +23,9 @@ use crate::planes::Plane;
 const STRENGTH: f64 = 0.5;
 
 /// The strength is halved again when the luminance level had to be lowered to what the colour
-/// noise allows ([`NoiseSpectrum::texture_suspected`]): the spectrum then surely holds texture
-/// (stained tissue: -0.16 / -0.15 dB at a quarter, -0.2 / -0.3 at half, -0.4 / -1.2 in full).
+/// noise or its own fine grain allows ([`NoiseSpectrum::texture_suspected`]): the spectrum then
+/// surely holds texture (stained tissue, limited by its colour noise: -0.16 / -0.15 dB at a
+/// quarter, -0.2 / -0.3 at half, -0.4 / -1.2 in full).
 const SUSPECT_SHARE: f64 = 0.5;
 
 /// Local variance (over a square of side 2 [`CALM_RADIUS`] + 1) in units of the noise's pixel
