@@ -16,7 +16,7 @@ use crate::error::{Error, Result};
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
 use crate::patch::matching::{match_groups, match_groups_across, patch_ssim, MatchParams};
-use crate::patch::transform::{combine_rows, dct2, dct_matrix, graph_fourier_basis, idct2};
+use crate::patch::transform::{combine_rows, dct2, dct_matrix, graph_fourier_rows, idct2};
 use crate::patch::Group;
 use crate::planes::Plane;
 use crate::progress::{check, Progress, SubProgress};
@@ -191,9 +191,16 @@ fn group_weights(
         GroupGraph::Uniform => (0..n).for_each(|i| (i + 1..n).for_each(|j| set(i, j, 1.0))),
         GroupGraph::NoiseTested => {
             let (scale, expected) = tested_expectation(noise, lf.len(), noisy);
+            // The low frequencies gathered once per patch, not once per pair.
+            let m = lf.len();
+            let low: Vec<f64> = coeffs.iter().flat_map(|c| lf.iter().map(|&f| f64::from(c[f]))).collect();
             for i in 0..n {
                 for j in i + 1..n {
-                    let d = lf_distance(coeffs[i], coeffs[j], lf);
+                    let d: f64 = low[i * m..(i + 1) * m]
+                        .iter()
+                        .zip(&low[j * m..(j + 1) * m])
+                        .map(|(a, b)| (a - b).powi(2))
+                        .sum();
                     // Not f64::exp: native and wasm builds must give the same bits (see synth).
                     set(i, j, exp_same_everywhere(-(d - expected).max(0.0) / (TESTED_SCALE * scale)));
                 }
@@ -265,8 +272,10 @@ fn flat_threshold_factor(t: &[f32], var: &[f32], kk: usize, grown: bool) -> f32 
     if !grown || t.len() <= kk {
         return 1.0;
     }
-    let energy: f64 =
-        t[kk..].iter().enumerate().map(|(i, v)| f64::from(v * v) / f64::from(var[i % kk]).max(1e-12)).sum();
+    let energy: f64 = t[kk..]
+        .chunks(kk)
+        .flat_map(|row| row.iter().zip(var).map(|(v, s)| f64::from(v * v) / f64::from(*s).max(1e-12)))
+        .sum();
     let (m, sd) = ((t.len() - kk) as f64, (2.0 * (t.len() - kk) as f64).sqrt());
     // A ramp, not a step: the result then moves continuously with the input, as the error
     // estimate's probe assumes (a step read coffee at sigma 50 0.43 dB high).
@@ -570,8 +579,7 @@ impl<'a> Stage<'a> {
                 basic_c.is_none(),
                 self.prof.group_graph,
             );
-            let m = graph_fourier_basis(&weights, n);
-            (0..n * n).map(|idx| m[(idx / n, idx % n)] as f32).collect()
+            graph_fourier_rows(&weights, n)
         } else {
             vec![1.0]
         };
@@ -592,14 +600,16 @@ impl<'a> Stage<'a> {
                 None => {
                     let raise = flat_threshold_factor(&t, &cn.var, kk, n > self.group_size());
                     let mut kept = 0.0f64;
-                    for (idx, v) in t.iter_mut().enumerate() {
-                        let f = idx % kk;
-                        let thr = if idx < kk { cn.thr[f] } else { cn.thr[f] * raise };
-                        // The group's mean patch DC (index 0) always stays.
-                        if idx == 0 || v.abs() >= thr {
-                            kept += cn.rel[f];
-                        } else {
-                            *v = 0.0;
+                    // Row by row (graph frequency j), so no coefficient pays for an index division.
+                    for (j, row) in t.chunks_mut(kk).enumerate() {
+                        for (f, v) in row.iter_mut().enumerate() {
+                            let thr = if j == 0 { cn.thr[f] } else { cn.thr[f] * raise };
+                            // The group's mean patch DC always stays.
+                            if (j == 0 && f == 0) || v.abs() >= thr {
+                                kept += cn.rel[f];
+                            } else {
+                                *v = 0.0;
+                            }
                         }
                     }
                     weight_den += kept;
@@ -607,11 +617,12 @@ impl<'a> Stage<'a> {
                 Some(b) => {
                     let tb = across(&b[ch]);
                     let mut gsum = 0.0f32;
-                    for (idx, (v, vb)) in t.iter_mut().zip(&tb).enumerate() {
-                        let f = idx % kk;
-                        let g = vb * vb / (vb * vb + cn.var[f]);
-                        *v *= g;
-                        gsum += g * g * cn.rel[f] as f32;
+                    for (row, row_b) in t.chunks_mut(kk).zip(tb.chunks(kk)) {
+                        for (f, (v, vb)) in row.iter_mut().zip(row_b).enumerate() {
+                            let g = vb * vb / (vb * vb + cn.var[f]);
+                            *v *= g;
+                            gsum += g * g * cn.rel[f] as f32;
+                        }
                     }
                     weight_den += f64::from(gsum);
                 }
@@ -629,8 +640,13 @@ impl<'a> Stage<'a> {
         let kept: Vec<Option<Vec<(usize, usize, f32)>>> = filtered
             .iter()
             .map(|t| {
-                let nz: Vec<(usize, usize, f32)> =
-                    t.iter().enumerate().filter(|(_, v)| **v != 0.0).map(|(idx, v)| (idx / kk, idx % kk, *v)).collect();
+                let nz: Vec<(usize, usize, f32)> = t
+                    .chunks(kk)
+                    .enumerate()
+                    .flat_map(|(j, row)| {
+                        row.iter().enumerate().filter(|(_, v)| **v != 0.0).map(move |(f, v)| (j, f, *v))
+                    })
+                    .collect();
                 (nz.len() * 4 < t.len()).then_some(nz)
             })
             .collect();

@@ -118,6 +118,8 @@ thread_local! {
     /// The complete graph's basis per group size, made once per thread: flat groups ask for it
     /// thousands of times per image and each costs n^2 cosines.
     static COMPLETE_BASES: std::cell::RefCell<Vec<Option<DMatrix<f64>>>> = const { std::cell::RefCell::new(Vec::new()) };
+    /// The same as f32 rows ([`graph_fourier_rows`]).
+    static COMPLETE_ROWS: std::cell::RefCell<Vec<Option<Vec<f32>>>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 /// The DCT-II basis across n patches in frequency order, each vector's largest-magnitude entry
@@ -146,14 +148,35 @@ fn complete_graph_basis(n: usize) -> DMatrix<f64> {
     })
 }
 
+/// [`graph_fourier_basis`] as f32, row-major: entry i of the j-th vector at [i n + j], the layout
+/// the group transforms read. The complete graph's is made once per size and thread.
+pub fn graph_fourier_rows(weights: &[f64], n: usize) -> Vec<f32> {
+    let rows = |m: &DMatrix<f64>| -> Vec<f32> { (0..n).flat_map(|i| (0..n).map(move |j| m[(i, j)] as f32)).collect() };
+    if is_complete_uniform(weights, n) {
+        return COMPLETE_ROWS.with(|cache| {
+            let mut cache = cache.borrow_mut();
+            if cache.len() <= n {
+                cache.resize(n + 1, None);
+            }
+            cache[n].get_or_insert_with(|| rows(&complete_graph_basis(n))).clone()
+        });
+    }
+    rows(&graph_fourier_basis(weights, n))
+}
+
+/// Whether every off-diagonal weight is the same positive value (a flat group's graph).
+fn is_complete_uniform(weights: &[f64], n: usize) -> bool {
+    let w0 = if n > 1 { weights[1] } else { 0.0 };
+    n > 1 && w0 > 0.0 && (0..n).all(|i| (0..n).all(|j| i == j || weights[i * n + j] == w0))
+}
+
 /// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
 /// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
 pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
     // A complete graph of equal weights (every flat group under the noise-tested graph): with the
     // path tie-break its eigenvectors are the DCT-II basis in frequency order, in closed form
     // (the eigensolver would give the same up to rounding, at O(n^3)).
-    let w0 = if n > 1 { weights[1] } else { 0.0 };
-    if n > 1 && w0 > 0.0 && (0..n).all(|i| (0..n).all(|j| i == j || weights[i * n + j] == w0)) {
+    if is_complete_uniform(weights, n) {
         return complete_graph_basis(n);
     }
     let mean_w = weights.iter().sum::<f64>() / (n * n.saturating_sub(1)).max(1) as f64;
