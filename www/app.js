@@ -292,7 +292,7 @@ async function main() {
   wireBatch();
   wireSweep(app);
   const started = await call('defaults');
-  app.defaults = JSON.parse(started.settings);
+  app.defaults = started.settings;
   app.fields = started.fields;
   app.methods = started.methods;
   document.body.dataset.wasm = started.build;

@@ -47,7 +47,7 @@ async function runQueue(files, pane, download) {
   $('batch-start').disabled = true;
   $('batch-stop').disabled = false;
   const overall = $('batch-overall');
-  const settings = JSON.stringify(pane.settings);
+  const settings = structuredClone(pane.settings);
   const report = [['file', 'result', 'sigma', 'seconds', 'error']];
   // A method that splits an image into bands uses every worker for one file; one that runs in
   // a single worker takes as many files at once as there are workers (the core's plan says which).

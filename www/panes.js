@@ -221,8 +221,7 @@ export class Pane {
     input.value = '';
     if (!file) return;
     try {
-      const normalised = await call('check', { json: await file.text() });
-      this.settings = JSON.parse(normalised);
+      this.settings = await call('check', { settings: JSON.parse(await file.text()) });
       this.writeForm();
       this.app.remember();
       this.markStale();
@@ -252,9 +251,9 @@ export class Pane {
     bar.value = 0;
     stage.textContent = 'starting';
     const show = progressLine(bar, stage);
-    const settings = JSON.stringify(this.settings);
     // The result belongs to the settings it started with, whatever is edited while it runs.
     const made = structuredClone(this.settings);
+    const settings = made;
     const { file, unit } = src;
     const estimate = this.app.estimating();
     const { pages, units } = src.fileInfo;
@@ -265,7 +264,6 @@ export class Pane {
       const r = await this.run.promise;
       // Another image was opened meanwhile (openSource stops runs; this guards the last moment).
       if (this.app.source !== src || src.file !== file) throw new Stopped('stopped');
-      r.report = JSON.parse(r.report);
       r.settings = made;
       r.quality = null;
       this.results.set(unit, r);
@@ -315,7 +313,7 @@ export class Pane {
     this.run = splitEstimate(bytes.slice(), settings, planes, (f, s) => show(f, `estimating the error: ${s}`));
     const t0 = performance.now();
     try {
-      r.report.error_estimate = JSON.parse(await this.run.promise);
+      r.report.error_estimate = await this.run.promise;
       stage.textContent = `${done}; error estimated in ${fmt((performance.now() - t0) / 1000)} s`;
     } catch (e) {
       stage.textContent = `${done}; error estimate ${e instanceof Stopped ? 'stopped' : 'failed'}`;
@@ -537,7 +535,7 @@ export class Pane {
     const src = this.app.source;
     if (!src) return;
     try {
-      const g = await call('group', { bytes: src.bytes.slice(), settings: JSON.stringify(this.settings), x, y });
+      const g = await call('group', { bytes: src.bytes.slice(), settings: this.settings, x, y });
       const ctx = this.overlay.getContext('2d');
       this.clearOverlay();
       // The overlay has the view's size; outlines are given in image pixels.
@@ -580,9 +578,9 @@ export class Pane {
     if (!src || this.run || !this.results.size) return;
     const base = (src.name || 'image').replace(/\.[^.]+$/, '');
     const units = src.fileInfo.units;
-    const settings = JSON.stringify(this.settings);
     const made = structuredClone(this.settings);
-    const same = (r) => r && JSON.stringify(r.settings) === settings;
+    const settings = made;
+    const same = (r) => r && JSON.stringify(r.settings) === JSON.stringify(made);
     const stage = this.q('.stage');
     const bar = this.q('.bar');
     this.error('');

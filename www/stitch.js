@@ -36,7 +36,7 @@ export function splitRun(bytes, settings, onProgress, keep = false) {
 
 // The error estimate's second pass: the same run on the input plus a small probe (the noise
 // model fitted on the input kept), then the estimate from both passes' planes. The promise
-// gives the estimate (JSON text of the core's ErrorEstimate).
+// gives the estimate (the core's ErrorEstimate, as an object).
 export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
   return split(bytes, settings, onProgress, async (run, prep, planes) => {
     onProgress(0.97, 'estimating the error');
@@ -94,7 +94,7 @@ function split(bytes, settings, onProgress, end, probe = false) {
         const basicWin = basic ? windowOf(basic, width, b.y0, b.y1) : new Float32Array(0);
         // The first stage's matching guide (correlated noise only), cut like the planes.
         const guide = !basic && prep.guide ? windowOf([prep.guide], width, b.y0, b.y1) : new Float32Array(0);
-        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: JSON.stringify(b), spectra: prep.spectra, noisy, basic: basicWin, guide },
+        run('band', { settings, sigma: prep.sigma, range: prep.range, width, height, band: b, spectra: prep.spectra, noisy, basic: basicWin, guide },
           [noisy.buffer, basicWin.buffer, guide.buffer], (f) => { part[i] = f; report(); })
           .then((r) => {
             if (failed) return;
@@ -116,7 +116,7 @@ function split(bytes, settings, onProgress, end, probe = false) {
     const t0 = performance.now();
     onProgress(0, 'preparing');
     const prep = await run('prepare', { bytes: bytes.slice(), settings, probe });
-    const bands = JSON.parse(prep.bands);
+    const { bands } = prep;
     let planes = prep.planes;
     if (bands.length) {
       const basic = await stage(prep, bands, null, 0.05, 0.45, 'basic estimate');

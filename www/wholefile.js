@@ -4,7 +4,7 @@
 import { task, call, poolSize, Stopped } from './tasks.js';
 import { splitRun } from './stitch.js';
 
-// How the core runs an image of a file of `pages` pages under these settings (JSON):
+// How the core runs an image of a file of `pages` pages under these settings:
 // {volume, bands}. As a volume, each image takes patches from the pages around it (the core
 // decides which); a method that splits into bands runs across all workers, others in one.
 export const runPlan = (settings, pages) => call('runPlan', { settings, pages });
@@ -120,7 +120,6 @@ export function runWholeFile(file, units, settings, onProgress, done = () => nul
     running.add(job);
     try {
       const r = await job.promise;
-      r.report = typeof r.report === 'string' ? JSON.parse(r.report) : r.report;
       keep(k, r);
       return r;
     } finally {
@@ -134,10 +133,7 @@ export function runWholeFile(file, units, settings, onProgress, done = () => nul
     if (plan.volume) {
       const todo = [];
       for (let k = 0; k < units; k += 1) if (!done(k)) todo.push(k);
-      const job = runStack(file, todo, pages, units, settings, (f, s) => onProgress(f, s), false, (k, r) => {
-        r.report = typeof r.report === 'string' ? JSON.parse(r.report) : r.report;
-        keep(k, r);
-      });
+      const job = runStack(file, todo, pages, units, settings, (f, s) => onProgress(f, s), false, keep);
       running.add(job);
       const made = await job.promise;
       running.delete(job);

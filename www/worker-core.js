@@ -28,7 +28,7 @@ export function installWorker(pg, ready, build) {
       let r;
       switch (m.kind) {
         case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), methods: pg.methods(), build }; break;
-        case 'check': r = pg.checkSettings(m.json); break;
+        case 'check': r = pg.checkSettings(m.settings); break;
         case 'runPlan': r = pg.runPlan(m.settings, m.pages); break;
         case 'open': r = pg.open(m.bytes, maxMegapixels); break;
         case 'denoise': r = pg.denoise(m.bytes, m.settings, maxMegapixels, progress, Boolean(m.estimate)); break;
@@ -47,11 +47,11 @@ export function installWorker(pg, ready, build) {
           r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, m.guide, progress);
           break;
         case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, maxMegapixels); break;
-        case 'noise': r = JSON.parse(pg.fitNoise(m.bytes, maxMegapixels)); break;
+        case 'noise': r = pg.fitNoise(m.bytes, maxMegapixels); break;
         case 'unitFile': r = { file: pg.unitFile(m.bytes, m.unit, maxMegapixels) }; break;
         case 'assemble': r = pg.assembleFile(m.bytes, m.results, m.settings, maxMegapixels); break;
-        case 'compare': r = JSON.parse(pg.compare(m.clean, m.test, maxMegapixels)); break;
-        case 'group': r = JSON.parse(pg.groupAt(m.bytes, m.settings, m.x, m.y, maxMegapixels)); break;
+        case 'compare': r = pg.compare(m.clean, m.test, maxMegapixels); break;
+        case 'group': r = pg.groupAt(m.bytes, m.settings, m.x, m.y, maxMegapixels); break;
         default: throw new Error(`unknown request ${m.kind}`);
       }
       const memory = (exports && exports.memory) || (pg.__wasm && pg.__wasm.memory);

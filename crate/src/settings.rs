@@ -245,8 +245,15 @@ impl Settings {
     /// Parses JSON; unknown fields and wrong types are refused with serde's own location message.
     /// Version 1 files are carried over to version 2 first (see [`upgrade_v1`]).
     pub fn from_json(text: &str) -> Result<Settings> {
-        let bad = |e: serde_json::Error| Error::BadSettings(format!("the settings file is not valid: {e}"));
-        let mut value: serde_json::Value = serde_json::from_str(text).map_err(bad)?;
+        let value: serde_json::Value = serde_json::from_str(text)
+            .map_err(|e| Error::BadSettings(format!("the settings file is not valid: {e}")))?;
+        Settings::from_value(value)
+    }
+
+    /// As [`Settings::from_json`], from settings already parsed (the page hands them over as an
+    /// object): version 1 upgraded, every range checked.
+    pub fn from_value(mut value: serde_json::Value) -> Result<Settings> {
+        let bad = |e: serde_json::Error| Error::BadSettings(format!("the settings are not valid: {e}"));
         // Version 1 by its number, or a file without one that uses version 1's own fields.
         let v1_fields = ["poisson_gain", "poisson_read_noise"].iter().any(|f| value.get(f).is_some());
         let version = value.get("version").and_then(serde_json::Value::as_u64);

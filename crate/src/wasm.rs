@@ -1,5 +1,7 @@
-//! The browser face: wasm-bindgen exports taking file bytes and settings JSON, returning plain JS
-//! objects whose large fields are Uint8Arrays (the worker transfers their buffers). Every error
+//! The browser face: wasm-bindgen exports taking file bytes and settings as a plain object
+//! (serde-wasm-bindgen, read as a settings file is), returning plain JS objects: reports, fits and
+//! plans through serde-wasm-bindgen, large fields as typed arrays made directly (the worker
+//! transfers their buffers). Every error
 //! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
 
 use crate::file::{self, DecodeLimits, Document, Format, Provenance};
@@ -25,6 +27,24 @@ fn js_err(e: Error) -> JsError {
 /// internal error, so every error crossing the boundary is one of the core's.
 fn internal(message: impl Into<String>) -> JsError {
     js_err(Error::Internal(message.into()))
+}
+
+/// Settings from the page: a plain object, read as a settings file is (version 1 upgraded,
+/// every range checked).
+fn settings_in(v: JsValue) -> Result<Settings, JsError> {
+    let value: serde_json::Value = serde_wasm_bindgen::from_value(v)
+        .map_err(|e| js_err(Error::BadSettings(format!("the settings are not valid: {e}"))))?;
+    Settings::from_value(value).map_err(js_err)
+}
+
+/// A core value as a plain JS object, as its JSON would read (maps as objects, None as null).
+fn to_js<T: serde::Serialize + ?Sized>(v: &T) -> Result<JsValue, JsError> {
+    v.serialize(&serde_wasm_bindgen::Serializer::json_compatible()).map_err(|e| internal(e.to_string()))
+}
+
+/// A value the page sent back as it was given (a band plan, spectra).
+fn from_js<T: serde::de::DeserializeOwned>(v: JsValue, what: &str) -> Result<T, JsError> {
+    serde_wasm_bindgen::from_value(v).map_err(|_| internal(format!("{what} sent to the worker is not valid")))
 }
 
 fn set(obj: &Object, key: &str, value: &JsValue) -> Result<(), JsError> {
@@ -122,24 +142,24 @@ pub fn start() {
     console_error_panic_hook::set_once();
 }
 
-/// The default settings as JSON (the page's starting point for a new pane).
+/// The default settings, as an object (the page's starting point for a new pane).
 #[wasm_bindgen(js_name = defaultSettings)]
-pub fn default_settings() -> String {
-    Settings::default().to_json()
+pub fn default_settings() -> Result<JsValue, JsError> {
+    to_js(&Settings::default())
 }
 
 /// The methods (name, label, help, whether split into bands, page limit; `methods::METHODS`),
 /// as an array of plain objects: the page builds its method list from it.
 #[wasm_bindgen(js_name = methods)]
 pub fn methods() -> Result<JsValue, JsError> {
-    serde_wasm_bindgen::to_value(crate::methods::METHODS).map_err(|e| internal(e.to_string()))
+    to_js(crate::methods::METHODS)
 }
 
 /// The table of every numeric setting (key, label, range, step, help; `setting_fields::FIELDS`),
 /// as an array of plain objects: the page builds its fields' limits and help from it.
 #[wasm_bindgen(js_name = settingFields)]
 pub fn setting_fields() -> Result<JsValue, JsError> {
-    serde_wasm_bindgen::to_value(crate::setting_fields::FIELDS).map_err(|e| internal(e.to_string()))
+    to_js(crate::setting_fields::FIELDS)
 }
 
 /// The page's size limit in megapixels (the core's default, as the CLI's).
@@ -152,13 +172,13 @@ pub fn max_megapixels() -> u32 {
 /// decides: `volume` (a slice of its stack, [`stack_around`]) and `bands` (split into bands of
 /// rows across the workers, the method table's `splits_into_bands`; else one worker).
 #[wasm_bindgen(js_name = runPlan)]
-pub fn run_plan(settings_json: &str, pages: u32) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+pub fn run_plan(settings: JsValue, pages: u32) -> Result<JsValue, JsError> {
+    let settings = settings_in(settings)?;
     let plan = RunPlan {
         volume: crate::stack::applies(&settings, pages as usize),
         bands: settings.method.info().splits_into_bands,
     };
-    serde_wasm_bindgen::to_value(&plan).map_err(|e| internal(e.to_string()))
+    to_js(&plan)
 }
 
 #[derive(serde::Serialize)]
@@ -167,10 +187,11 @@ struct RunPlan {
     bands: bool,
 }
 
-/// Checks settings JSON; returns it normalised (all fields present) or throws the reason.
+/// Checks settings (an object, as a settings file reads); returns them normalised (all fields
+/// present) or throws the reason.
 #[wasm_bindgen(js_name = checkSettings)]
-pub fn check_settings(json: &str) -> Result<String, JsError> {
-    Settings::from_json(json).map(|s| s.to_json()).map_err(js_err)
+pub fn check_settings(settings: JsValue) -> Result<JsValue, JsError> {
+    to_js(&settings_in(settings)?)
 }
 
 /// Size, depth, channels, noise estimates and an RGBA preview of an image file.
@@ -201,10 +222,10 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     Ok(obj.into())
 }
 
-/// The noise as `noise: "auto"` fits it, as JSON: {model, sentence, fallback, channels (each with
+/// The noise as `noise: "auto"` fits it, as an object: {model, sentence, fallback, channels (each with
 /// its level function's points and line, and photon parameters when used), planes, spectra_8}.
 #[wasm_bindgen(js_name = fitNoise)]
-pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<String, JsError> {
+pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     let img = decode(input, max_megapixels)?;
     let fit = pipeline::fit_noise(&img, &Settings::default()).map_err(js_err)?;
     let v = serde_json::json!({
@@ -219,7 +240,7 @@ pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<String, JsError> {
         }))).collect::<Vec<_>>(),
         "bitDepth": img.depth.bits(),
     });
-    Ok(v.to_string())
+    to_js(&v)
 }
 
 /// The views' shrink factor and size (views of large images are smaller than the image).
@@ -258,8 +279,7 @@ fn run_result(
         set(&obj, "detail", &bytes(&preview::flagged_rgba8(&run.image, &map, removed_detail::FLAG, f)))?;
         set(&obj, "detailShare", &JsValue::from_f64(removed_detail::flagged_share(&map)))?;
     }
-    let report = serde_json::to_string(&run.report).map_err(|e| internal(e.to_string()))?;
-    set(&obj, "report", &JsValue::from_str(&report))?;
+    set(&obj, "report", &to_js(&run.report)?)?;
     Ok(obj.into())
 }
 
@@ -268,12 +288,12 @@ fn run_result(
 #[wasm_bindgen]
 pub fn denoise(
     input: &[u8],
-    settings_json: &str,
+    settings: JsValue,
     max_megapixels: u32,
     on_progress: &Function,
     estimate: bool,
 ) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let pixels = img.width * img.height;
     let info = settings.method.info();
@@ -298,8 +318,8 @@ pub fn denoise(
 /// Image `k` of a stack as a volume (`patch_graph.neighbour_slices`), split into jobs: the images
 /// whose first stages it takes, in order (`pages` and `units` as [`open`] gave them).
 #[wasm_bindgen(js_name = stackAround)]
-pub fn stack_around(k: u32, pages: u32, units: u32, settings_json: &str) -> Result<Array, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+pub fn stack_around(k: u32, pages: u32, units: u32, settings: JsValue) -> Result<Array, JsError> {
+    let settings = settings_in(settings)?;
     let around = stack_image(&[], k, pages, units, 0).around(&settings).map_err(js_err)?;
     Ok(around.into_iter().map(num).collect())
 }
@@ -317,11 +337,11 @@ pub fn slice_first_stage(
     k: u32,
     pages: u32,
     units: u32,
-    settings_json: &str,
+    settings: JsValue,
     max_megapixels: u32,
     on_progress: &Function,
 ) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let settings = settings_in(settings)?;
     let one = stack_image(input, k, pages, units, max_megapixels);
     let planes = one.first_stage(&settings, &JsProgress(on_progress)).map_err(js_err)?;
     let obj = Object::new();
@@ -338,13 +358,13 @@ pub fn slice_second_stage(
     k: u32,
     pages: u32,
     units: u32,
-    settings_json: &str,
+    settings: JsValue,
     basics: &Array,
     max_megapixels: u32,
     on_progress: &Function,
     estimate: bool,
 ) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let settings = settings_in(settings)?;
     let one = stack_image(input, k, pages, units, max_megapixels);
     let original = file::decode_unit(input, &one.limits, one.image).map_err(js_err)?;
     let unit_bytes = file::encode(&original, Format::Tiff, None).map_err(js_err)?;
@@ -370,8 +390,8 @@ pub fn slice_second_stage(
 /// is nothing to remove (sigma 0). With `probe`, the planes are the error estimate's second
 /// input (the image plus the probe, under the model fitted on the image).
 #[wasm_bindgen(js_name = prepareRun)]
-pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe: bool) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+pub fn prepare_run(input: &[u8], settings: JsValue, max_megapixels: u32, probe: bool) -> Result<JsValue, JsError> {
+    let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let probed = if probe { pipeline::probe_planes(&img, &p) } else { None };
@@ -399,9 +419,9 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe
     // Correlated noise: what the first stage's matching compares (null: the luminance itself).
     let guide = if plan.is_empty() { None } else { matching_guide(&planes, spectra.as_deref()) };
     set(&obj, "guide", &guide.map_or(JsValue::NULL, |g| Float32Array::from(g.data.as_slice()).into()))?;
-    set(&obj, "bands", &JsValue::from_str(&serde_json::to_string(&plan).map_err(|e| internal(e.to_string()))?))?;
-    // Correlated noise: the spectra every band needs, as JSON ("null" for white noise).
-    set(&obj, "spectra", &JsValue::from_str(&serde_json::to_string(&spectra).map_err(|e| internal(e.to_string()))?))?;
+    set(&obj, "bands", &to_js(&plan)?)?;
+    // Correlated noise: the spectra every band needs (null for white noise).
+    set(&obj, "spectra", &to_js(&spectra)?)?;
     Ok(obj.into())
 }
 
@@ -412,20 +432,20 @@ pub fn prepare_run(input: &[u8], settings_json: &str, max_megapixels: u32, probe
 #[wasm_bindgen(js_name = runBand)]
 #[allow(clippy::too_many_arguments)]
 pub fn run_band(
-    settings_json: &str,
+    settings: JsValue,
     sigma: f64,
     range: f64,
     width: u32,
     full_height: u32,
-    band: &str,
-    spectra: &str,
+    band: JsValue,
+    spectra: JsValue,
     noisy: &[f32],
     basic: &[f32],
     guide: &[f32],
     on_progress: &Function,
 ) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
-    let band: Band = serde_json::from_str(band).map_err(|_| internal("the band description is not valid"))?;
+    let settings = settings_in(settings)?;
+    let band: Band = from_js(band, "the band description")?;
     if band.y1 <= band.y0 || band.y1 > full_height as usize {
         return Err(internal("the band lies outside the image"));
     }
@@ -433,8 +453,7 @@ pub fn run_band(
     let noisy = unflatten(noisy, w, rows)?;
     let basic = if basic.is_empty() { None } else { Some(unflatten(basic, w, rows)?) };
     let guide = if guide.is_empty() { Vec::new() } else { unflatten(guide, w, rows)? };
-    let spectra: Option<Vec<NoiseSpectrum>> =
-        serde_json::from_str(spectra).map_err(|_| internal("the noise spectra sent to the worker are not valid"))?;
+    let spectra: Option<Vec<NoiseSpectrum>> = from_js(spectra, "the noise spectra")?;
     let stage = Stage::new(
         &noisy,
         basic.as_deref(),
@@ -469,8 +488,8 @@ impl BandAssembler {
     /// `bands`: the plan as [`prepare_run`] gave it; `planes`: the stage's input planes (an array
     /// of Float32Arrays of `width` x `height`), kept where no patch lands.
     #[wasm_bindgen(constructor)]
-    pub fn new(bands: &str, width: u32, height: u32, planes: &Array) -> Result<BandAssembler, JsError> {
-        let plan: Vec<Band> = serde_json::from_str(bands).map_err(|_| internal("the band description is not valid"))?;
+    pub fn new(bands: JsValue, width: u32, height: u32, planes: &Array) -> Result<BandAssembler, JsError> {
+        let plan: Vec<Band> = from_js(bands, "the band plan")?;
         let (width, height) = (width as usize, height as usize);
         if plan.iter().any(|b| b.y1 <= b.y0 || b.y1 > height) {
             return Err(internal("a band lies outside the image"));
@@ -506,8 +525,8 @@ impl BandAssembler {
 /// Last step of a split run: the method's output planes (an array of Float32Arrays) back to an
 /// image, as [`denoise`] returns it.
 #[wasm_bindgen(js_name = finishRun)]
-pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapixels: u32) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+pub fn finish_run(input: &[u8], settings: JsValue, planes: &Array, max_megapixels: u32) -> Result<JsValue, JsError> {
+    let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let planes = planes_from(planes, img.width, img.height)?;
@@ -519,17 +538,17 @@ pub fn finish_run(input: &[u8], settings_json: &str, planes: &Array, max_megapix
     run_result(input, max_megapixels, &settings, &img, &run)
 }
 
-/// The error estimate (JSON) from a split run's method planes and its probe pass's
+/// The error estimate (an object) from a split run's method planes and its probe pass's
 /// ([`prepare_run`] with `probe`).
 #[wasm_bindgen(js_name = estimateError)]
 pub fn estimate_error(
     input: &[u8],
-    settings_json: &str,
+    settings: JsValue,
     result: &Array,
     probe: &Array,
     max_megapixels: u32,
-) -> Result<String, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+) -> Result<JsValue, JsError> {
+    let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
     let result = planes_from(result, img.width, img.height)?;
@@ -539,29 +558,27 @@ pub fn estimate_error(
     }
     // Where prepareRun skipped the pass, the planes are unperturbed, and the estimate finds the
     // same reason before it looks at them.
-    let e = pipeline::estimate_error(&img, &p, result, Some(probed));
-    serde_json::to_string(&e).map_err(|e| internal(e.to_string()))
+    to_js(&pipeline::estimate_error(&img, &p, result, Some(probed)))
 }
 
-/// PSNR and SSIM of `test` against `clean` (both file bytes) as JSON.
+/// PSNR and SSIM of `test` against `clean` (both file bytes), as an object.
 #[wasm_bindgen]
-pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<String, JsError> {
+pub fn compare(clean: &[u8], test: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     let a = decode_file(clean, max_megapixels)?;
     let b = decode_file(test, max_megapixels)?;
     // The result in the reference's value map (float files are each scaled by their own range).
     let q =
         metrics::compare(&a.unit(0).map_err(js_err)?, &b.unit_in(0, a.unit_map(0)).map_err(js_err)?).map_err(js_err)?;
-    serde_json::to_string(&q).map_err(|e| internal(e.to_string()))
+    to_js(&q)
 }
 
-/// The patch group of the reference covering pixel (x, y), as JSON {positions, similarity, patch}.
+/// The patch group of the reference covering pixel (x, y), as an object {positions, similarity, patch}.
 #[wasm_bindgen(js_name = groupAt)]
-pub fn group_at(input: &[u8], settings_json: &str, x: u32, y: u32, max_megapixels: u32) -> Result<String, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+pub fn group_at(input: &[u8], settings: JsValue, x: u32, y: u32, max_megapixels: u32) -> Result<JsValue, JsError> {
+    let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let (g, patch) = pipeline::group_at(&img, &settings, x as usize, y as usize).map_err(js_err)?;
-    let v = serde_json::json!({"positions": g.positions, "similarity": g.similarity, "patch": patch});
-    Ok(v.to_string())
+    to_js(&serde_json::json!({"positions": g.positions, "similarity": g.similarity, "patch": patch}))
 }
 
 /// Image `k` of a file (a page, or one channel of it) as a file of its own, for the workers: it
@@ -580,10 +597,10 @@ pub fn unit_file(input: &[u8], k: u32, max_megapixels: u32) -> Result<Uint8Array
 pub fn assemble_file(
     input: &[u8],
     results: &Array,
-    settings_json: &str,
+    settings: JsValue,
     max_megapixels: u32,
 ) -> Result<JsValue, JsError> {
-    let settings = Settings::from_json(settings_json).map_err(js_err)?;
+    let settings = settings_in(settings)?;
     let mut doc = decode_file(input, max_megapixels)?;
     if results.length() as usize != doc.units() {
         return Err(internal(format!("{} results for a file of {} images", results.length(), doc.units())));

@@ -39,7 +39,7 @@ const bytes = [...readFileSync(image)];
 const timed = (page, method, mode) => page.evaluate(async ({ data, m, how }) => {
   const { task } = await import('./tasks.js');
   const { splitRun } = await import('./stitch.js');
-  const settings = JSON.stringify({ method: m, sigma: 20 });
+  const settings = { method: m, sigma: 20 };
   let memory = 0;
   const single = async () => {
     const r = await task('denoise', { bytes: new Uint8Array(data), settings }).promise;
