@@ -72,12 +72,14 @@ function addHelp(form, table, methods) {
     label.title = help;
     const dt = document.createElement('dt');
     dt.textContent = label.firstChild.textContent.trim();
-    dt.className = label.closest('.only-patch-graph') ? 'only-patch-graph' : label.closest('.only-pixel-graph') ? 'only-pixel-graph' : '';
+    const own = label.closest('[data-for-method]');
+    if (own) dt.dataset.forMethod = own.dataset.forMethod;
     // A field shown only in some cases has its help shown only then.
     for (const only of ['only-stack', 'cut-grid-only']) if (label.classList.contains(only)) dt.classList.add(only);
     const dd = document.createElement('dd');
     dd.textContent = help;
     dd.className = dt.className;
+    if (own) dd.dataset.forMethod = own.dataset.forMethod;
     list.append(dt, dd);
   }
 }
@@ -181,8 +183,15 @@ export class Pane {
     f.elements['sigma-auto'].checked = auto;
     f.elements.sigma.disabled = auto;
     if (!auto) f.elements.sigma.value = this.settings.sigma;
+    this.showMethod();
+  }
+
+  // The pane's method's own parts (marked data-for-method in the page: its fieldset, views,
+  // help lines) show; every other method's hide. Nothing here names a method.
+  showMethod() {
     this.el.dataset.method = this.settings.method;
     this.el.dataset.graph = this.settings.pixel_graph.graph;
+    for (const el of this.el.querySelectorAll('[data-for-method]')) el.hidden = el.dataset.forMethod !== this.settings.method;
   }
 
   // With "Estimate sigma" on, the sigma box shows the image's estimate (in the file's units), so
@@ -198,8 +207,7 @@ export class Pane {
     const auto = f.elements['sigma-auto'].checked;
     f.elements.sigma.disabled = auto;
     this.settings.sigma = auto ? 'auto' : Number(f.elements.sigma.value);
-    this.el.dataset.method = this.settings.method;
-    this.el.dataset.graph = this.settings.pixel_graph.graph;
+    this.showMethod();
     this.app.remember();
     this.markStale();
   }
