@@ -62,13 +62,17 @@ impl Accumulator {
 
     /// Adds one k x k patch estimate per channel at (x, y) in this accumulator's coordinates.
     pub fn add(&mut self, x: usize, y: usize, k: usize, patches: &[&[f32]], window: &[f32], weight: f32) {
+        // Row slices, a channel at a time: the same sums as pixel by pixel (each sum is its own),
+        // in loops the compiler can vectorise.
         for r in 0..k {
             let row = (y + r) * self.width + x;
-            for c in 0..k {
-                let wv = f64::from(window[r * k + c] * weight);
-                self.den[row + c] += wv;
-                for (ch, p) in patches.iter().enumerate() {
-                    self.num[ch][row + c] += wv * f64::from(p[r * k + c]);
+            let win = &window[r * k..(r + 1) * k];
+            for (d, w) in self.den[row..row + k].iter_mut().zip(win) {
+                *d += f64::from(w * weight);
+            }
+            for (num, p) in self.num.iter_mut().zip(patches) {
+                for ((o, w), v) in num[row..row + k].iter_mut().zip(win).zip(&p[r * k..(r + 1) * k]) {
+                    *o += f64::from(w * weight) * f64::from(*v);
                 }
             }
         }
