@@ -198,13 +198,17 @@ impl GridGraph {
     }
 }
 
-impl LinearOperator for GridGraph {
-    fn dim(&self) -> usize {
-        self.width * self.height
-    }
+/// Output values per block of [`GridGraph::apply`] (a few rows of a large image).
+#[cfg(feature = "parallel")]
+const APPLY_BLOCK: usize = 1 << 14;
 
-    fn apply(&self, x: &[f64], y: &mut [f64]) {
-        for ((yi, xi), d) in y.iter_mut().zip(x).zip(&self.degree) {
+impl GridGraph {
+    /// y = (A x)[start .. start + y.len()]: the degree term, then per offset the edges to later
+    /// pixels (y_i -= w_ij x_j) and from earlier ones (y_j -= w_ij x_i), as the whole product
+    /// adds them.
+    fn apply_part(&self, x: &[f64], y: &mut [f64], start: usize) {
+        let end = start + y.len();
+        for ((yi, xi), d) in y.iter_mut().zip(&x[start..end]).zip(&self.degree[start..end]) {
             *yi = d * xi;
         }
         let n = x.len();
@@ -217,16 +221,40 @@ impl LinearOperator for GridGraph {
                 continue;
             }
             let d = delta as usize;
-            let wk = &self.weights[k][..n - d];
+            let wk = &self.weights[k];
             // Gather form over contiguous slices, so the loops vectorise: y_i -= w_ij x_j ...
-            for ((yi, wi), xj) in y[..n - d].iter_mut().zip(wk).zip(&x[d..]) {
-                *yi -= f64::from(*wi) * xj;
+            let (a0, a1) = (start, end.min(n - d));
+            if a1 > a0 {
+                for ((yi, wi), xj) in y[..a1 - start].iter_mut().zip(&wk[a0..a1]).zip(&x[a0 + d..a1 + d]) {
+                    *yi -= f64::from(*wi) * xj;
+                }
             }
             // ... and y_j -= w_ij x_i.
-            for ((yj, wi), xi) in y[d..].iter_mut().zip(wk).zip(&x[..n - d]) {
-                *yj -= f64::from(*wi) * xi;
+            let (b0, b1) = (start.max(d), end);
+            if b1 > b0 {
+                for ((yj, wi), xi) in y[b0 - start..].iter_mut().zip(&wk[b0 - d..b1 - d]).zip(&x[b0 - d..b1 - d]) {
+                    *yj -= f64::from(*wi) * xi;
+                }
             }
         }
+    }
+}
+
+impl LinearOperator for GridGraph {
+    fn dim(&self) -> usize {
+        self.width * self.height
+    }
+
+    fn apply(&self, x: &[f64], y: &mut [f64]) {
+        // In blocks of rows of the output, in parallel natively: each output value gets its
+        // terms in the same order whatever the blocks, so the bits do not depend on them.
+        #[cfg(feature = "parallel")]
+        {
+            use rayon::prelude::*;
+            y.par_chunks_mut(APPLY_BLOCK).enumerate().for_each(|(b, part)| self.apply_part(x, part, b * APPLY_BLOCK));
+        }
+        #[cfg(not(feature = "parallel"))]
+        self.apply_part(x, y, 0);
     }
 
     fn diagonal(&self) -> Vec<f64> {
