@@ -205,7 +205,9 @@ type Correlated = (Vec<PlaneNoise>, f64, Option<Limit>);
 /// None when the image is too small to tell.
 fn correlated_noise(working: &[Plane], range: f64, settings: &Settings) -> Option<Correlated> {
     let planes = opponent_if_colour(working);
-    let at = |k: usize| -> Option<Vec<NoiseSpectrum>> { planes.iter().map(|p| spectrum::estimate(p, k)).collect() };
+    let at = |k: usize| -> Option<Vec<NoiseSpectrum>> {
+        crate::planes::per_plane(&planes, |p| spectrum::estimate(p, k)).into_iter().collect()
+    };
     let mut first = at(8)?;
     if !first.iter().any(NoiseSpectrum::is_coloured) {
         return None;
@@ -309,7 +311,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         _ => noise::estimate(c, Some(top)).chosen(),
     };
     let levels: Vec<f64> = if fitting && img.channels.len() == 3 {
-        img.channels.iter().map(channel_level).collect()
+        crate::planes::per_plane(&img.channels, channel_level)
     } else {
         vec![1.0; img.channels.len()]
     };
@@ -341,7 +343,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         ),
     };
     let clip_top = if stabilisers.is_some() { None } else { Some(top) };
-    let estimates: Vec<NoiseEstimate> = working.iter().map(|p| noise::estimate(p, clip_top)).collect();
+    let estimates: Vec<NoiseEstimate> = crate::planes::per_plane(&working, |p| noise::estimate(p, clip_top));
     let (mut sigma, estimated) = match settings.sigma {
         Sigma::Value(v) => (v, false),
         Sigma::Auto(_) => (blind_sigma(&estimates), true),

@@ -128,7 +128,7 @@ pub fn photon_fit(f: &NoiseLevelFunction, settings: &Settings) -> PhotonFit {
 
 /// Fits each channel's noise-level function (values in [0, top]).
 pub fn fit_channels(channels: &[Plane], top: f64) -> Vec<NoiseLevelFunction> {
-    channels.iter().map(|c| nlf::fit(c, top)).collect()
+    crate::planes::per_plane(channels, |c| nlf::fit(c, top))
 }
 
 /// The model's name from its two choices.
