@@ -1,8 +1,8 @@
 //! The browser face: wasm-bindgen exports taking file bytes and settings as a plain object
 //! (serde-wasm-bindgen, read as a settings file is), returning plain JS objects: reports, fits and
 //! plans through serde-wasm-bindgen, large fields as typed arrays made directly (the worker
-//! transfers their buffers). Every error
-//! comes back as a JS exception carrying the core's one-sentence message; nothing here panics.
+//! transfers their buffers). Every error comes back as a JS exception carrying the core's
+//! one-sentence message; nothing here panics.
 
 use crate::file::{self, DecodeLimits, Document, Format, Provenance};
 use crate::methods::bands::{self, Band};
