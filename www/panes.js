@@ -7,8 +7,10 @@ import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 import { verdict, fmt } from './verdict.js';
 
 // Every form field: how it reads and writes the settings. Numeric fields name their setting
-// (`key`): label, limits and help come from the core's table of settings (settingFields), so a
-// range is written once; the choices carry their help here.
+// (`key`): label, limits, help and method come from the core's table of settings
+// (settingFields), so a range is written once; the choices carry their label, method, options
+// and help here. A method's fields are built into its own fieldset (methodFieldsets); `only`
+// names the class of a field shown only in some cases.
 const fields = {
   // Its list and help come from the core's table of methods (app.methods).
   method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
@@ -20,13 +22,16 @@ const fields = {
   'pg-group': { key: 'patch_graph.group_size_hard',
     set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; } },
   'pg-search': { key: 'patch_graph.search_radius' },
-  'pg-slices': { key: 'patch_graph.neighbour_slices' },
+  'pg-slices': { key: 'patch_graph.neighbour_slices', only: 'only-stack' },
   'px-graph': { path: 'pixel_graph.graph', get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
+    label: 'Graph', method: 'pixel-graph',
+    choices: [['cut-grid', 'Neighbours, cut at edges (fast)'], ['non-local', 'Most similar pixels nearby (about 4× slower)']],
     help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
   'px-filter': { path: 'pixel_graph.filter', get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
+    label: 'Filter', method: 'pixel-graph', choices: [['tikhonov', 'Tikhonov (solver)'], ['heat', 'Heat kernel (polynomial)']],
     help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
   'px-strength': { key: 'pixel_graph.strength' },
-  'px-cut': { key: 'pixel_graph.cut_threshold' },
+  'px-cut': { key: 'pixel_graph.cut_threshold', only: 'cut-grid-only' },
   'px-passes': { key: 'pixel_graph.passes' },
 };
 
@@ -53,14 +58,48 @@ export const paramColumns = Object.values(fields)
     return { name, method: group.replace('_', '-'), get: fld.get };
   });
 
+// One fieldset per method (the core's table of methods), holding the fields the core's table of
+// settings (or the field itself, for choices) gives to that method, in `fields` order; marked
+// data-for-method so the pane shows only its own method's (Pane.showMethod).
+function methodFieldsets(form, table, methods) {
+  for (const m of methods) {
+    const set = document.createElement('fieldset');
+    set.dataset.forMethod = m.name;
+    const legend = document.createElement('legend');
+    legend.textContent = m.label;
+    set.append(legend);
+    for (const [name, fld] of Object.entries(fields)) {
+      const info = fld.key && table.find((f) => f.key === fld.key);
+      if ((info ? info.method : fld.method) !== m.name) continue;
+      const label = document.createElement('label');
+      if (fld.only) label.classList.add(fld.only);
+      let input;
+      if (fld.choices) {
+        input = document.createElement('select');
+        input.append(...fld.choices.map(([value, text]) => new Option(text, value)));
+        label.append(`${fld.label} `);
+      } else {
+        input = document.createElement('input');
+        input.type = 'number';
+      }
+      input.name = name;
+      label.append(input);
+      set.append(label);
+    }
+    form.append(set);
+  }
+}
+
 // The method list, and each numeric field's label, limits and help, from the core's tables;
 // hover help on every field, and the same lines listed in the form's "What these settings do".
 function addHelp(form, table, methods) {
+  methodFieldsets(form, table, methods);
   const list = form.querySelector('.param-help dl');
   form.elements.method.replaceChildren(...methods.map((m) => new Option(m.label, m.name)));
   fields.method.help = methods.map((m) => `${m.label}: ${m.help}`).join(' ');
   for (const [name, fld] of Object.entries(fields)) {
     const input = form.elements[name];
+    if (!input) throw new Error(`no method of the core's table takes the field ${name}`);
     const label = input.closest('label');
     const info = fld.key && table.find((f) => f.key === fld.key);
     if (fld.key && !info) throw new Error(`the core describes no setting ${fld.key}`);
@@ -75,7 +114,7 @@ function addHelp(form, table, methods) {
     const own = label.closest('[data-for-method]');
     if (own) dt.dataset.forMethod = own.dataset.forMethod;
     // A field shown only in some cases has its help shown only then.
-    for (const only of ['only-stack', 'cut-grid-only']) if (label.classList.contains(only)) dt.classList.add(only);
+    if (fld.only) dt.classList.add(fld.only);
     const dd = document.createElement('dd');
     dd.textContent = help;
     dd.className = dt.className;
