@@ -294,6 +294,7 @@ async function main() {
   const started = await call('defaults');
   app.defaults = started.settings;
   app.fields = started.fields;
+  app.choices = started.choices;
   app.methods = started.methods;
   document.body.dataset.wasm = started.build;
   let stored;

@@ -6,16 +6,16 @@ import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 import { verdict, fmt } from './verdict.js';
 
-// Every form field: how it reads and writes the settings. Numeric fields name their setting
-// (`key`): label, limits, help and method come from the core's table of settings
-// (settingFields), so a range is written once; the choices carry their label, method, options
-// and help here. A method's fields are built into its own fieldset (methodFieldsets); `only`
-// names the class of a field shown only in some cases.
+// The settings the page shows, by form field name. A numeric field names its setting (`key`):
+// label, limits, help and method come from the core's table of settings (settingFields); a
+// choice names its setting (`choice`): label, options, help and method come from the core's
+// table of choices (settingChoices). So a range or an option is written once. A method's fields
+// are built into its own fieldset (methodFieldsets); `only` names the class of a field shown only
+// in some cases.
 const fields = {
   // Its list and help come from the core's table of methods (app.methods).
   method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
-  noise: { get: (s) => s.noise, set: (s, v) => { s.noise = v; },
-    help: 'What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.' },
+  noise: { choice: 'noise' },
   'pg-threshold': { key: 'patch_graph.threshold' },
   'pg-patch': { key: 'patch_graph.patch_size' },
   // One group size on the page for both stages.
@@ -23,13 +23,8 @@ const fields = {
     set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; } },
   'pg-search': { key: 'patch_graph.search_radius' },
   'pg-slices': { key: 'patch_graph.neighbour_slices', only: 'only-stack' },
-  'px-graph': { path: 'pixel_graph.graph', get: (s) => s.pixel_graph.graph, set: (s, v) => { s.pixel_graph.graph = v; },
-    label: 'Graph', method: 'pixel-graph',
-    choices: [['cut-grid', 'Neighbours, cut at edges (fast)'], ['non-local', 'Most similar pixels nearby (about 4× slower)']],
-    help: 'Which pixels are smoothed together: each pixel\'s neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).' },
-  'px-filter': { path: 'pixel_graph.filter', get: (s) => s.pixel_graph.filter, set: (s, v) => { s.pixel_graph.filter = v; },
-    label: 'Filter', method: 'pixel-graph', choices: [['tikhonov', 'Tikhonov (solver)'], ['heat', 'Heat kernel (polynomial)']],
-    help: 'Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).' },
+  'px-graph': { choice: 'pixel_graph.graph' },
+  'px-filter': { choice: 'pixel_graph.filter' },
   'px-strength': { key: 'pixel_graph.strength' },
   'px-cut': { key: 'pixel_graph.cut_threshold', only: 'cut-grid-only' },
   'px-passes': { key: 'pixel_graph.passes' },
@@ -40,28 +35,30 @@ const getKey = (s, key) => key.split('.').reduce((o, k) => o[k], s);
 const setKey = (s, key, v) => {
   const path = key.split('.');
   const last = path.pop();
-  path.reduce((o, k) => o[k], s)[last] = +v;
+  path.reduce((o, k) => o[k], s)[last] = v;
 };
 for (const fld of Object.values(fields)) {
-  if (!fld.key) continue;
-  fld.get ||= (s) => getKey(s, fld.key);
-  fld.set ||= (s, v) => setKey(s, fld.key, v);
+  const key = fld.key || fld.choice;
+  if (!key) continue;
+  fld.get ||= (s) => getKey(s, key);
+  // Numbers as numbers; a choice's value as the text settings files use.
+  fld.set ||= (s, v) => setKey(s, key, fld.key ? +v : v);
 }
 
 // The parameter columns of the board's table and its CSV: every method's own form field, named by
 // the last part of its settings path, in form order. A method's settings live under its name
 // ('patch_graph.threshold' belongs to 'patch-graph'), so a field is empty for the other method.
 export const paramColumns = Object.values(fields)
-  .filter((fld) => (fld.path || fld.key || '').includes('.'))
+  .filter((fld) => (fld.key || fld.choice || '').includes('.'))
   .map((fld) => {
-    const [group, name] = (fld.path || fld.key).split('.');
+    const [group, name] = (fld.key || fld.choice).split('.');
     return { name, method: group.replace('_', '-'), get: fld.get };
   });
 
-// One fieldset per method (the core's table of methods), holding the fields the core's table of
-// settings (or the field itself, for choices) gives to that method, in `fields` order; marked
+// One fieldset per method (the core's table of methods), holding the fields the core's tables of
+// settings and choices give to that method, in `fields` order; marked
 // data-for-method so the pane shows only its own method's (Pane.showMethod).
-function methodFieldsets(form, table, methods) {
+function methodFieldsets(form, tables, methods) {
   for (const m of methods) {
     const set = document.createElement('fieldset');
     set.dataset.forMethod = m.name;
@@ -69,19 +66,12 @@ function methodFieldsets(form, table, methods) {
     legend.textContent = m.label;
     set.append(legend);
     for (const [name, fld] of Object.entries(fields)) {
-      const info = fld.key && table.find((f) => f.key === fld.key);
-      if ((info ? info.method : fld.method) !== m.name) continue;
+      const info = describe(fld, tables);
+      if (!info || info.method !== m.name) continue;
       const label = document.createElement('label');
       if (fld.only) label.classList.add(fld.only);
-      let input;
-      if (fld.choices) {
-        input = document.createElement('select');
-        input.append(...fld.choices.map(([value, text]) => new Option(text, value)));
-        label.append(`${fld.label} `);
-      } else {
-        input = document.createElement('input');
-        input.type = 'number';
-      }
+      const input = document.createElement(fld.choice ? 'select' : 'input');
+      if (!fld.choice) input.type = 'number';
       input.name = name;
       label.append(input);
       set.append(label);
@@ -90,10 +80,19 @@ function methodFieldsets(form, table, methods) {
   }
 }
 
-// The method list, and each numeric field's label, limits and help, from the core's tables;
-// hover help on every field, and the same lines listed in the form's "What these settings do".
-function addHelp(form, table, methods) {
-  methodFieldsets(form, table, methods);
+// A field's entry in the core's tables ({fields, choices}); none for the method list.
+function describe(fld, tables) {
+  const info = fld.key ? tables.fields.find((f) => f.key === fld.key)
+    : fld.choice ? tables.choices.find((c) => c.key === fld.choice) : null;
+  if ((fld.key || fld.choice) && !info) throw new Error(`the core describes no setting ${fld.key || fld.choice}`);
+  return info;
+}
+
+// The method list, each numeric field's label, limits and help and each choice's label, options
+// and help, from the core's tables; hover help on every field, and the same lines listed in the
+// form's "What these settings do".
+function addHelp(form, tables, methods) {
+  methodFieldsets(form, tables, methods);
   const list = form.querySelector('.param-help dl');
   form.elements.method.replaceChildren(...methods.map((m) => new Option(m.label, m.name)));
   fields.method.help = methods.map((m) => `${m.label}: ${m.help}`).join(' ');
@@ -101,12 +100,10 @@ function addHelp(form, table, methods) {
     const input = form.elements[name];
     if (!input) throw new Error(`no method of the core's table takes the field ${name}`);
     const label = input.closest('label');
-    const info = fld.key && table.find((f) => f.key === fld.key);
-    if (fld.key && !info) throw new Error(`the core describes no setting ${fld.key}`);
-    if (info) {
-      label.prepend(`${info.label} `);
-      Object.assign(input, { min: info.zero_means ? 0 : info.min, max: info.max, step: info.step });
-    }
+    const info = describe(fld, tables);
+    if (info) label.prepend(`${info.label} `);
+    if (info && fld.key) Object.assign(input, { min: info.zero_means ? 0 : info.min, max: info.max, step: info.step });
+    if (info && fld.choice) input.replaceChildren(...info.options.map(([value, text]) => new Option(text, value)));
     const help = info ? info.help : fld.help;
     label.title = help;
     const dt = document.createElement('dt');
@@ -183,7 +180,7 @@ export class Pane {
     this.canvas = q('.picture');
     this.overlay = q('.overlay');
     this.viewport = q('.viewport');
-    addHelp(q('.controls'), app.fields, app.methods);
+    addHelp(q('.controls'), { fields: app.fields, choices: app.choices }, app.methods);
     this.writeForm();
     q('.controls').addEventListener('input', () => this.readForm());
     q('.controls').addEventListener('submit', (e) => e.preventDefault());

@@ -27,7 +27,7 @@ export function installWorker(pg, ready, build) {
       const start = performance.now();
       let r;
       switch (m.kind) {
-        case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), methods: pg.methods(), build }; break;
+        case 'defaults': r = { settings: pg.defaultSettings(), fields: pg.settingFields(), choices: pg.settingChoices(), methods: pg.methods(), build }; break;
         case 'check': r = pg.checkSettings(m.settings); break;
         case 'runPlan': r = pg.runPlan(m.settings, m.pages); break;
         case 'open': r = pg.open(m.bytes, maxMegapixels); break;

@@ -67,6 +67,51 @@ pub const FIELDS: &[Field] = &[
     px(f("pixel_graph.guide_blur", "Guide blur", 0.0, 5.0, 0.1, "Gaussian pre-smoothing (pixels) of the first guide.")),
 ];
 
+/// One setting that takes one of a few named values (an enum of the settings).
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct Choice {
+    /// Its path in the settings JSON, e.g. `pixel_graph.graph`.
+    pub key: &'static str,
+    /// What the page calls it.
+    pub label: &'static str,
+    /// The method that uses it (None: every run).
+    pub method: Option<Method>,
+    /// Each value as settings files write it, with what the page calls it.
+    pub options: &'static [(&'static str, &'static str)],
+    /// One line of help.
+    pub help: &'static str,
+}
+
+/// Every choice the page offers besides the method, in the order the page lists them (the
+/// methods are `methods::METHODS`).
+pub const CHOICES: &[Choice] = &[
+    Choice {
+        key: "noise",
+        label: "Noise",
+        method: None,
+        options: &[
+            ("auto", "Fitted from the image"),
+            ("gaussian", "One level everywhere (white Gaussian)"),
+            ("poisson", "Photon counts (Poisson with read noise)"),
+        ],
+        help: "What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.",
+    },
+    Choice {
+        key: "pixel_graph.graph",
+        label: "Graph",
+        method: Some(Method::PixelGraph),
+        options: &[("cut-grid", "Neighbours, cut at edges (fast)"), ("non-local", "Most similar pixels nearby (about 4× slower)")],
+        help: "Which pixels are smoothed together: each pixel's neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).",
+    },
+    Choice {
+        key: "pixel_graph.filter",
+        label: "Filter",
+        method: Some(Method::PixelGraph),
+        options: &[("tikhonov", "Tikhonov (solver)"), ("heat", "Heat kernel (polynomial)")],
+        help: "Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).",
+    },
+];
+
 /// The table's entry for `key`.
 pub fn field(key: &str) -> Option<&'static Field> {
     FIELDS.iter().find(|f| f.key == key)
@@ -109,6 +154,27 @@ mod tests {
             assert!(range.contains(&want), "README row for {} says '{range}', the table {want}", f.key);
             if f.zero_means.is_some() {
                 assert!(range.contains("0, or"), "README row for {} does not say 0 is accepted", f.key);
+            }
+        }
+    }
+
+    #[test]
+    fn every_choice_is_a_value_settings_read_and_the_readme_lists() {
+        // Invariants: each option, put in a settings file, reads back as that value (serde's
+        // names); the default is one of the options; the README's row lists every option.
+        let readme = include_str!("../../README.md");
+        let default = serde_json::to_value(crate::Settings::default()).unwrap();
+        for c in CHOICES {
+            let pointer = format!("/{}", c.key.replace('.', "/"));
+            let current = default.pointer(&pointer).and_then(|v| v.as_str()).unwrap();
+            assert!(c.options.iter().any(|(v, _)| *v == current), "{}: default {current} not offered", c.key);
+            let row = readme.lines().find(|l| l.starts_with(&format!("| `{}` |", c.key))).unwrap();
+            for (value, _) in c.options {
+                let mut v = default.clone();
+                *v.pointer_mut(&pointer).unwrap() = serde_json::json!(value);
+                let s = crate::Settings::from_value(v).unwrap();
+                assert_eq!(serde_json::to_value(&s).unwrap().pointer(&pointer).unwrap(), &serde_json::json!(value));
+                assert!(row.contains(&format!("`{value}`")), "README's {} row lacks {value}", c.key);
             }
         }
     }

@@ -162,6 +162,13 @@ pub fn setting_fields() -> Result<JsValue, JsError> {
     to_js(crate::setting_fields::FIELDS)
 }
 
+/// The table of every choice setting (key, label, method, options as [value, label], help;
+/// `setting_fields::CHOICES`): the page builds its lists from it.
+#[wasm_bindgen(js_name = settingChoices)]
+pub fn setting_choices() -> Result<JsValue, JsError> {
+    to_js(crate::setting_fields::CHOICES)
+}
+
 /// The page's size limit in megapixels (the core's default, as the CLI's).
 #[wasm_bindgen(js_name = maxMegapixels)]
 pub fn max_megapixels() -> u32 {
