@@ -12,7 +12,7 @@
 
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::transform::dct_matrix;
-use crate::planes::Plane;
+use crate::planes::{mirror, Plane};
 
 /// How far to whiten: the gains are (mean v / v_f)^(strength / 2), 1 being full whitening. Half:
 /// where fine texture fills a picture, its spectrum holds texture read as noise, and whitening
@@ -107,17 +107,6 @@ fn whitening_kernel(spectrum: &NoiseSpectrum, strength: f64) -> Vec<f32> {
         }
     }
     h
-}
-
-/// Index `i` (possibly outside 0..n) reflected into 0..n about the edge samples (..., 1, 0, 1, ...).
-fn mirror(i: isize, n: usize) -> usize {
-    let n = n as isize;
-    if n == 1 {
-        return 0;
-    }
-    let period = 2 * (n - 1);
-    let m = i.rem_euclid(period);
-    (if m < n { m } else { period - m }) as usize
 }
 
 /// out(y, x) = sum over d of h(d) in(y + dy, x + dx), the image mirrored past its edges; each
@@ -268,13 +257,6 @@ mod tests {
         assert!(lag1(&out).abs() < 0.1, "whitened lag-1 {}", lag1(&out));
         let ratio = var(&out) / var(&noisy);
         assert!((ratio - 1.0).abs() < 0.15, "variance ratio {ratio}");
-    }
-
-    #[test]
-    fn mirror_reflects_about_the_edge_samples() {
-        // Whole-sample symmetric extension: ... 2 1 | 0 1 2 3 | 2 1 ...
-        let got: Vec<usize> = (-3..7).map(|i| mirror(i, 4)).collect();
-        assert_eq!(got, vec![3, 2, 1, 0, 1, 2, 3, 2, 1, 0]);
     }
 
     #[test]
