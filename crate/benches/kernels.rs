@@ -36,8 +36,16 @@ fn matching_one_tile(bencher: divan::Bencher, search: usize) {
     let plane = noisy_plane(crop);
     let refs: Vec<(usize, usize)> =
         (0..16).flat_map(|j| (0..16).map(move |i| (search + 4 * i, search + 4 * j))).collect();
-    let p =
-        MatchParams { patch: 8, search, max_group: 32, min_similarity: 0.0, range: 255.0, noise_var: 625.0, step: 4 };
+    let p = MatchParams {
+        patch: 8,
+        search,
+        max_group: 32,
+        min_similarity: 0.0,
+        range: 255.0,
+        noise_var: 625.0,
+        step: 4,
+        noise_cov: &[],
+    };
     bencher.bench_local(|| match_groups(divan::black_box(&plane), &refs, &p, &NoProgress));
 }
 

@@ -117,8 +117,16 @@ fn a_slice_shifted_in_register_is_found_where_it_lies() {
             other.data[y * N + x] = own.data[sy * N + sx];
         }
     }
-    let p =
-        MatchParams { patch: 8, search: 4, max_group: 4, min_similarity: 0.0, range: 255.0, noise_var: 0.0, step: 4 };
+    let p = MatchParams {
+        patch: 8,
+        search: 4,
+        max_group: 4,
+        min_similarity: 0.0,
+        range: 255.0,
+        noise_var: 0.0,
+        step: 4,
+        noise_cov: &[],
+    };
     let g = match_groups_across(&own, &[&other], 6, &[(20, 22)], &p, &NoProgress).expect("matching")[0].clone();
     assert_eq!((g.positions[1], g.slice(1)), ((22, 21), 1), "group {:?} slices {:?}", g.positions, g.slices);
     assert!((g.similarity[1] - 1.0).abs() < 1e-6);

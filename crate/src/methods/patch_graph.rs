@@ -15,6 +15,7 @@ use super::MethodOutput;
 use crate::error::{Error, Result};
 use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
+use crate::patch::guide::noise_lag_covariance;
 use crate::patch::matching::{match_groups, match_groups_across, patch_ssim, MatchParams};
 use crate::patch::transform::{combine_rows, dct2, dct_matrix, graph_fourier_rows, idct2};
 use crate::patch::Group;
@@ -338,6 +339,9 @@ pub struct Stage<'a> {
     /// coefficients, DC included (group graph).
     match_var: f64,
     lf_var: f64,
+    /// The matched plane's noise covariance by lag (see [`MatchParams::noise_cov`]); empty for
+    /// white noise.
+    noise_cov: Vec<f64>,
     /// Neighbouring slices of a stack (each with the planes of `noisy`, and of `basic` in stage
     /// 2), whose patches join the groups but are not written: see [`Stage::with_slices`].
     context: Vec<&'a [Plane]>,
@@ -391,6 +395,11 @@ impl<'a> Stage<'a> {
             Some(sp) => (sp[0].pixel_variance(), lf.iter().map(|&i| sp[0].variances[i]).sum::<f64>()),
             None => (sigma * sigma, sigma * sigma * lf.len() as f64),
         };
+        // Stage 2 matches on the basic estimate, whose remaining noise is not measured.
+        let noise_cov = match (spectra, basic) {
+            (Some(sp), None) => noise_lag_covariance(&sp[0], true),
+            _ => Vec::new(),
+        };
         Ok(Stage {
             noisy,
             basic,
@@ -405,6 +414,7 @@ impl<'a> Stage<'a> {
             noise,
             match_var,
             lf_var,
+            noise_cov,
             context: Vec::new(),
             context_basic: Vec::new(),
             guides: Vec::new(),
@@ -501,6 +511,7 @@ impl<'a> Stage<'a> {
             range: self.range,
             noise_var: if basic.is_some() { 0.0 } else { self.match_var },
             step: self.prof.step,
+            noise_cov: &self.noise_cov,
         };
         let sub = SubProgress { parent: progress, start: 0.0, span: 0.5 };
         let groups = match_groups_across(guides[0], &guides[1..], SLICE_SEARCH, &local, &mp, &sub)?;
@@ -789,6 +800,7 @@ pub fn group_at(
     let rx = nearest(ref_axis(luma.width, k, prof.step), x);
     let ry = nearest(ref_axis(luma.height, k, prof.step), y);
     let growth = if prof.group_graph.grows_flat_groups() { FLAT_GROWTH } else { 1 };
+    let cov = spectrum.map(|sp| noise_lag_covariance(sp, true)).unwrap_or_default();
     let mp = MatchParams {
         patch: k,
         search: prof.search,
@@ -797,6 +809,7 @@ pub fn group_at(
         range: max_value,
         noise_var: luma_sigma * luma_sigma,
         step: prof.step,
+        noise_cov: &cov,
     };
     // Matched where a run matches: on the whitened guide under grainy noise.
     let guide = spectrum.and_then(|sp| crate::patch::guide::matching_guide(luma, sp));

@@ -75,38 +75,61 @@ fn gains(spectrum: &NoiseSpectrum, strength: f64) -> Vec<f64> {
 /// h(d) = (1 / k^2) sum over pixels j of a block with j + d in it of M[j + d, j], where
 /// M = sum_f g_f phi_f phi_f^T over the 2-D DCT basis images phi_f.
 fn whitening_kernel(spectrum: &NoiseSpectrum, strength: f64) -> Vec<f32> {
-    let k = spectrum.k;
+    let kk = (spectrum.k * spectrum.k) as f64;
+    lag_sums(spectrum.k, &gains(spectrum, strength)).iter().map(|&(sum, _)| (sum / kk) as f32).collect()
+}
+
+/// The covariance of the matching plane's noise between two pixels d apart, for every lag with
+/// |dx|, |dy| < k ((2k - 1)^2 values, row-major, centre (k - 1, k - 1)): the mean of M[j + d, j]
+/// over the pairs of a block, M = sum_f v_f phi_f phi_f^T the block covariance whose DCT
+/// variances are v (exact when the DCT diagonalises it; white noise gives sigma^2 at d = 0 and 0
+/// elsewhere). `whitened`: of the first-stage guide's noise in calm areas (v_f g_f^2, what
+/// [`matching_guide`] leaves there), else of the plane's own.
+pub fn noise_lag_covariance(spectrum: &NoiseSpectrum, whitened: bool) -> Vec<f64> {
+    let v = &spectrum.variances;
+    let weights: Vec<f64> = if whitened {
+        v.iter().zip(gains(spectrum, whitening_strength(spectrum))).map(|(x, g)| x * g * g).collect()
+    } else {
+        v.clone()
+    };
+    lag_sums(spectrum.k, &weights).iter().map(|&(sum, pairs)| sum / pairs.max(1) as f64).collect()
+}
+
+/// Per lag d (|dx|, |dy| < k, row-major, centre (k - 1, k - 1)): the sum of M[j + d, j] over the
+/// pixels j of a k x k block with j + d in it, and how many there are; M = sum_f w_f phi_f phi_f^T
+/// over the 2-D DCT basis images phi_f.
+fn lag_sums(k: usize, w: &[f64]) -> Vec<(f64, usize)> {
     let kk = k * k;
-    let g = gains(spectrum, strength);
     let c = dct_matrix(k);
     let phi = |f: usize, j: usize| f64::from(c[(f / k) * k + j / k]) * f64::from(c[(f % k) * k + j % k]);
     let mut m = vec![0.0f64; kk * kk];
-    for (f, gf) in g.iter().enumerate() {
+    for (f, wf) in w.iter().enumerate() {
         let basis: Vec<f64> = (0..kk).map(|j| phi(f, j)).collect();
         for (i, bi) in basis.iter().enumerate() {
             for (j, bj) in basis.iter().enumerate() {
-                m[i * kk + j] += gf * bi * bj;
+                m[i * kk + j] += wf * bi * bj;
             }
         }
     }
     let side = 2 * k - 1;
-    let mut h = vec![0.0f32; side * side];
+    let mut out = vec![(0.0, 0); side * side];
     for dy in 0..side {
         for dx in 0..side {
             let (oy, ox) = (dy as isize - (k as isize - 1), dx as isize - (k as isize - 1));
-            let mut sum = 0.0;
+            let (mut sum, mut pairs) = (0.0, 0);
             for jy in 0..k as isize {
                 for jx in 0..k as isize {
                     let (iy, ix) = (jy + oy, jx + ox);
                     if (0..k as isize).contains(&iy) && (0..k as isize).contains(&ix) {
                         sum += m[(iy as usize * k + ix as usize) * kk + jy as usize * k + jx as usize];
+                        pairs += 1;
                     }
                 }
             }
-            h[dy * side + dx] = (sum / kk as f64) as f32;
+            out[dy * side + dx] = (sum, pairs);
         }
     }
-    h
+    out
 }
 
 /// out(y, x) = sum over d of h(d) in(y + dy, x + dx), the image mirrored past its edges; each
@@ -184,6 +207,59 @@ mod tests {
         NoiseSpectrum { k, variances, blocks: 1, median_ratio: 1.0, texture_suspected: false }
     }
 
+    /// Autocovariance at lag d of unit white noise filtered by `a` (closed form: sum a_t a_(t+d)).
+    fn auto1(a: &[f64], d: isize) -> f64 {
+        (0..a.len() as isize)
+            .filter(|t| (0..a.len() as isize).contains(&(t + d)))
+            .map(|t| a[t as usize] * a[(t + d) as usize])
+            .sum()
+    }
+
+    /// The k x k DCT coefficient variances of unit white noise filtered by `a` along each axis,
+    /// in closed form from its separable autocovariance: v_f = phi_f^T C phi_f.
+    fn filtered_spectrum(k: usize, a: &[f64]) -> Vec<f64> {
+        let c = dct_matrix(k);
+        let phi = |f: usize, j: usize| f64::from(c[(f / k) * k + j / k]) * f64::from(c[(f % k) * k + j % k]);
+        (0..k * k)
+            .map(|f| {
+                let mut v = 0.0;
+                for i in 0..k * k {
+                    for j in 0..k * k {
+                        let (dy, dx) = ((i / k) as isize - (j / k) as isize, (i % k) as isize - (j % k) as isize);
+                        v += phi(f, i) * phi(f, j) * auto1(a, dy) * auto1(a, dx);
+                    }
+                }
+                v
+            })
+            .collect()
+    }
+
+    #[test]
+    fn the_lag_covariance_of_filtered_noise_follows_its_closed_form() {
+        // White noise: sigma^2 at lag 0 and 0 elsewhere, up to the rounding of the f32 DCT matrix (M = sigma^2 I).
+        let k = 8;
+        let side = 2 * k - 1;
+        let centre = (k - 1) * side + k - 1;
+        for (i, v) in noise_lag_covariance(&spectrum(k, vec![9.0; k * k]), false).iter().enumerate() {
+            let want = if i == centre { 9.0 } else { 0.0 };
+            assert!((v - want).abs() < 1e-6, "lag {i}: {v}");
+        }
+        // Noise filtered by [1 2 1] / 4 each way (the grainy noise of the bench): closed form
+        // C(dx, dy) = c(dx) c(dy), c = (6, 4, 1) / 16 at lags 0, 1, 2. The DCT does not quite
+        // diagonalise the block covariance, so what the 8 x 8 variances give back is off by up to
+        // 0.074 C(0) (measured: lag (1, 1) 0.052 for 0.0625, (1, 0) 0.086 for 0.094, (3, 0)
+        // 0.004 for 0; low where the closed form is large, so matching takes out less than is
+        // shared, never more).
+        let a = [0.25, 0.5, 0.25];
+        let cov = noise_lag_covariance(&spectrum(k, filtered_spectrum(k, &a)), false);
+        let c0 = auto1(&a, 0).powi(2);
+        for (dx, dy) in [(0isize, 0isize), (1, 0), (0, 1), (1, 1), (2, 0), (2, 1), (3, 0), (5, 2)] {
+            let got = cov[(dy + k as isize - 1) as usize * side + (dx + k as isize - 1) as usize];
+            let want = auto1(&a, dx) * auto1(&a, dy);
+            assert!((got - want).abs() < 0.08 * c0, "lag ({dx}, {dy}): {got} for {want}");
+        }
+    }
+
     #[test]
     fn white_noise_gets_the_identity_kernel() {
         // Closed form: with every gain 1, M is the identity (the DCT basis is orthonormal), so
@@ -207,24 +283,7 @@ mod tests {
         // vanishes at the highest frequency, it leaves 0.25 of 0.67.)
         let (k, n) = (8usize, 256usize);
         let a = [0.15f64, 0.7, 0.15];
-        let auto1 = |d: isize| -> f64 {
-            (0..3isize).filter(|t| (0..3).contains(&(t + d))).map(|t| a[t as usize] * a[(t + d) as usize]).sum()
-        };
-        let c = dct_matrix(k);
-        let phi = |f: usize, j: usize| f64::from(c[(f / k) * k + j / k]) * f64::from(c[(f % k) * k + j % k]);
-        let variances: Vec<f64> = (0..k * k)
-            .map(|f| {
-                let mut v = 0.0;
-                for i in 0..k * k {
-                    for j in 0..k * k {
-                        let (dy, dx) = ((i / k) as isize - (j / k) as isize, (i % k) as isize - (j % k) as isize);
-                        v += phi(f, i) * phi(f, j) * auto1(dy) * auto1(dx);
-                    }
-                }
-                v
-            })
-            .collect();
-        let sp = spectrum(k, variances);
+        let sp = spectrum(k, filtered_spectrum(k, &a));
         let mut rng = crate::synth::Rng::new(7);
         let white: Vec<f64> = (0..(n + 2) * (n + 2)).map(|_| 10.0 * rng.normal()).collect();
         let mut data = vec![0.0f32; n * n];

@@ -7,7 +7,10 @@
 //!
 //! The similarity is the SSIM of two patches (Wang et al. 2004, one window per patch) with the
 //! noise variance taken out of the patch variances: noise inflates both variances but not their
-//! covariance, and uncorrected SSIM would rank noisy flat patches as dissimilar.
+//! covariance, and uncorrected SSIM would rank noisy flat patches as dissimilar. Correlated noise
+//! does inflate the covariance of overlapping patches (they share its grain), which would rank a
+//! flat area's nearest neighbours first and group copies of one noise pattern: given the noise's
+//! covariance by lag, that share is taken out too.
 
 use super::Group;
 use crate::error::Result;
@@ -16,7 +19,7 @@ use crate::progress::{check, Progress};
 
 /// How block matching forms groups.
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct MatchParams {
+pub struct MatchParams<'a> {
     /// Patch side in pixels.
     pub patch: usize,
     /// Half-size of the search window, in pixels.
@@ -33,6 +36,11 @@ pub struct MatchParams {
     /// it and the patch side, in an order fixed by these two alone, so a reference's similarities
     /// do not depend on which other references share its call (tiles, bands, the page's view).
     pub step: usize,
+    /// Covariance of the matched plane's noise between pixels d apart, |dx|, |dy| < patch
+    /// ((2 patch - 1)^2 values, row-major, centre (patch - 1, patch - 1)); empty for white noise.
+    /// Overlapping patches of the same slice share correlated noise, which the covariance of the
+    /// two would count as likeness: it is taken out.
+    pub noise_cov: &'a [f64],
 }
 
 /// k x k box sums of a w x h array at every top-left corner, each a direct sum of k column sums
@@ -303,6 +311,23 @@ pub fn match_groups_across(
         .map(|&(dx, dy)| (dx, dy, 0u8))
         .chain((0..others.len()).flat_map(|j| offsets_across.iter().map(move |&(dx, dy)| (dx, dy, (j + 1) as u8))))
         .collect();
+    let side = 2 * k - 1;
+    if !p.noise_cov.is_empty() && p.noise_cov.len() != side * side {
+        return Err(crate::error::Error::Internal("the noise covariance does not fit the patch size".into()));
+    }
+    // Per offer: the noise covariance shared with the reference (0 beyond a patch, across slices
+    // and for white noise).
+    let shared: Vec<f64> = all
+        .iter()
+        .map(|&(dx, dy, slice)| {
+            let near = dx.unsigned_abs() < k && dy.unsigned_abs() < k;
+            if slice == 0 && near && !p.noise_cov.is_empty() {
+                p.noise_cov[(dy + k as isize - 1) as usize * side + (dx + k as isize - 1) as usize]
+            } else {
+                0.0
+            }
+        })
+        .collect();
     let keep = p.max_group.saturating_sub(1); // the reference takes the first place
     let mut best: Vec<Best> = refs.iter().map(|_| Best { list: Vec::with_capacity(keep + 1), cap: keep }).collect();
     for (n, &(dx, dy, slice)) in all.iter().enumerate() {
@@ -323,7 +348,7 @@ pub fn match_groups_across(
             }
             let (mr, vr) = pos_stats[ry * pw + rx];
             let (mc, vc) = stats[cy as usize * pw + cx as usize];
-            let cov = blocks.square(i, &sums) / kk - mr * mc;
+            let cov = blocks.square(i, &sums) / kk - mr * mc - shared[n];
             // patch_ssim's numerator and denominator: a candidate that
             // falls clearly short of what it must beat is passed over without the division (the
             // margin of 1e-6 is far above the rounding of the quotient and of its f32 copy).
@@ -373,16 +398,40 @@ mod tests {
         Plane::from_fn(side, side, |x, y| (40.0 + 3.1 * x as f32 + 1.7 * (y % 9) as f32) + 9.3 * rng.normal() as f32)
     }
 
-    fn params() -> MatchParams {
-        MatchParams { patch: 8, search: 5, max_group: 9, min_similarity: 0.0, range: 255.0, noise_var: 20.0, step: 4 }
+    fn params() -> MatchParams<'static> {
+        MatchParams {
+            patch: 8,
+            search: 5,
+            max_group: 9,
+            min_similarity: 0.0,
+            range: 255.0,
+            noise_var: 20.0,
+            step: 4,
+            noise_cov: &[],
+        }
     }
 
     #[test]
     fn groups_are_the_most_similar_candidates_by_the_ssim_formula() {
+        groups_follow_the_ssim_formula(&[]);
+        // Correlated noise: the covariance its overlapping patches share comes off theirs (any
+        // values serve the check; these fall with the lag as a grain's do).
+        let side = 15;
+        let cov: Vec<f64> = (0..side * side)
+            .map(|i| {
+                let (dx, dy) = ((i % side) as f64 - 7.0, (i / side) as f64 - 7.0);
+                30.0 * (-(dx * dx + dy * dy) / 4.0).exp()
+            })
+            .collect();
+        groups_follow_the_ssim_formula(&cov);
+    }
+
+    fn groups_follow_the_ssim_formula(noise_cov: &[f64]) {
         // Reference: SSIM of two patches (Wang et al. 2004, one window), computed directly here
-        // in f64 over every candidate of the window, noise variance removed as documented.
+        // in f64 over every candidate of the window, noise variance (and the covariance the
+        // noise of overlapping patches shares) removed as documented.
         let img = plane(40);
-        let p = params();
+        let p = MatchParams { noise_cov, ..params() };
         let refs: Vec<(usize, usize)> = (0..4).flat_map(|j| (0..4).map(move |i| (6 + 4 * i, 7 + 4 * j))).collect();
         let groups = match_groups(&img, &refs, &p, &NoProgress).expect("matching");
         let at = |x: usize, y: usize, i: usize, j: usize| f64::from(img.data[(y + i) * img.width + x + j]);
@@ -401,8 +450,10 @@ mod tests {
                         continue;
                     }
                     let (mc, vc) = stats(cx, cy);
+                    let shared = if noise_cov.is_empty() { 0.0 } else { noise_cov[(cy + 7 - ry) * 15 + cx + 7 - rx] };
                     let cov = (0..64).map(|q| at(rx, ry, q / 8, q % 8) * at(cx, cy, q / 8, q % 8)).sum::<f64>() / 64.0
-                        - mr * mc;
+                        - mr * mc
+                        - shared;
                     all.push((patch_ssim(mr, mc, vr, vc, cov, c1, c2), (cx, cy)));
                 }
             }
