@@ -23,7 +23,7 @@ export function splitRun(bytes, settings, onProgress, keep = false) {
   return split(bytes, settings, onProgress, async (run, prep, planes, bands, peak, t0) => {
     onProgress(0.95, 'writing the result');
     const kept = keep ? planes.map((p) => p.slice()) : null;
-    const r = await run('finish', { bytes: bytes.slice(), settings, planes }, planes.map((p) => p.buffer));
+    const r = await run('finish', { bytes: bytes.slice(), settings, fitted: prep.fitted, planes }, planes.map((p) => p.buffer));
     r.seconds = (performance.now() - t0) / 1000;
     r.workers = Math.max(1, Math.min(poolSize, bands.length));
     r.peakWorkerBytes = Math.max(peak.band, peak.whole);
@@ -40,7 +40,7 @@ export function splitRun(bytes, settings, onProgress, keep = false) {
 export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
   return split(bytes, settings, onProgress, async (run, prep, planes) => {
     onProgress(0.97, 'estimating the error');
-    const r = await run('estimate', { bytes: bytes.slice(), settings, result: resultPlanes, probe: planes },
+    const r = await run('estimate', { bytes: bytes.slice(), settings, fitted: prep.fitted, result: resultPlanes, probe: planes },
       [...planes, ...resultPlanes].map((p) => p.buffer));
     return r.estimate;
   }, true);

@@ -42,11 +42,11 @@ export function installWorker(pg, ready, build) {
         case 'assemblerStart': assembler = new pg.BandAssembler(m.bands, m.width, m.height, m.planes); r = {}; break;
         case 'assemblerAdd': assembler.add(m.index, m.num, m.den); r = {}; break;
         case 'assemblerFinish': r = { planes: assembler.finish() }; assembler = null; break;
-        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.result, m.probe, maxMegapixels) }; break;
+        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.fitted, m.result, m.probe, maxMegapixels) }; break;
         case 'band':
           r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, m.guide, progress);
           break;
-        case 'finish': r = pg.finishRun(m.bytes, m.settings, m.planes, maxMegapixels); break;
+        case 'finish': r = pg.finishRun(m.bytes, m.settings, m.fitted, m.planes, maxMegapixels); break;
         case 'noise': r = pg.fitNoise(m.bytes, maxMegapixels); break;
         case 'unitFile': r = { file: pg.unitFile(m.bytes, m.unit, maxMegapixels) }; break;
         case 'assemble': r = pg.assembleFile(m.bytes, m.results, m.settings, maxMegapixels); break;

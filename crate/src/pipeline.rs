@@ -16,7 +16,7 @@ use crate::patch::Group;
 use crate::planes::{Image, Plane};
 use crate::progress::{Labelled, Progress, SubProgress};
 use crate::settings::{Method, NoiseModel, Settings, Sigma};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::borrow::Cow;
 
 /// What a run did: method, noise model and level, residual checks, optional error estimate.
@@ -275,6 +275,62 @@ fn mean_level(img: &Image, channels: &[ChannelNoise], dependence: Dependence, pl
     (working_var * s / n.max(1) as f64).sqrt()
 }
 
+/// The planes the methods work on, and their peak value: the image's own, or stabilised.
+fn working_planes<'a>(img: &'a Image, stabilisers: Option<&[Stabiliser]>) -> (Cow<'a, [Plane]>, f64) {
+    let top = f64::from(img.max_value());
+    match stabilisers {
+        None => (Cow::Borrowed(img.channels.as_slice()), top),
+        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
+        Some(st) => (
+            Cow::Owned(img.channels.iter().zip(st).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect()),
+            st.iter().map(|p| p.forward(top)).fold(0.0, f64::max),
+        ),
+    }
+}
+
+/// What [`prepare`] fitted, without the planes: a page worker that finishes or checks a split run
+/// gets it from the one that prepared, instead of fitting the noise again (same values, same
+/// bytes).
+#[derive(Clone, Debug, Serialize, Deserialize)]
+pub struct Fitted {
+    stabilisers: Option<Vec<Stabiliser>>,
+    clip: Option<Vec<ClipInverse>>,
+    sigma: f64,
+    estimated: bool,
+    estimates: Vec<NoiseEstimate>,
+    noise: NoiseReport,
+}
+
+impl Prepared<'_> {
+    /// The fitted model, to be handed to [`prepared_from`].
+    pub fn fitted(&self) -> Fitted {
+        Fitted {
+            stabilisers: self.stabilisers.clone(),
+            clip: self.clip.clone(),
+            sigma: self.sigma,
+            estimated: self.estimated,
+            estimates: self.estimates.clone(),
+            noise: self.noise.clone(),
+        }
+    }
+}
+
+/// [`prepare`]'s result for `img` from a model it fitted before on the same image.
+pub fn prepared_from(img: &Image, fitted: Fitted) -> Result<Prepared<'_>> {
+    let n = img.channels.len();
+    let fits = fitted.stabilisers.as_ref().is_none_or(|s| s.len() == n)
+        && fitted.clip.as_ref().is_none_or(|c| c.len() == n)
+        && fitted.estimates.len() == n
+        && fitted.noise.planes.len() == n
+        && fitted.sigma.is_finite();
+    if !fits {
+        return Err(Error::Internal("the fitted noise model does not belong to this image".into()));
+    }
+    let Fitted { stabilisers, clip, sigma, estimated, estimates, noise } = fitted;
+    let (working, range) = working_planes(img, stabilisers.as_deref());
+    Ok(Prepared { stabilisers, clip, working, range, sigma, estimated, estimates, noise })
+}
+
 /// Validates the settings and prepares a run: the noise model (fitted or given), the
 /// stabilising or clip-correcting transform, the working planes and sigma.
 pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> {
@@ -334,14 +390,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
                 .collect(),
         ),
     };
-    let (working, range) = match &stabilisers {
-        None => (Cow::Borrowed(img.channels.as_slice()), top),
-        // The range of the stabilised domain, so sigma-relative parameters see the same scale.
-        Some(st) => (
-            Cow::Owned(img.channels.iter().zip(st).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect()),
-            st.iter().map(|p| p.forward(top)).fold(0.0, f64::max),
-        ),
-    };
+    let (working, range) = working_planes(img, stabilisers.as_deref());
     let clip_top = if stabilisers.is_some() { None } else { Some(top) };
     let estimates: Vec<NoiseEstimate> = crate::planes::per_plane(&working, |p| noise::estimate(p, clip_top));
     let (mut sigma, estimated) = match settings.sigma {

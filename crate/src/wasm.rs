@@ -405,7 +405,7 @@ pub fn prepare_run(input: &[u8], settings: JsValue, max_megapixels: u32, probe: 
     // A probe pass that cannot give an estimate is not run: no bands, and the estimate says why.
     let skip = probe && probed.is_none();
     let planes = probed.unwrap_or_else(|| pipeline::method_planes(&p));
-    let (sigma, range, spectra) = (p.sigma, p.range, p.spectra());
+    let (sigma, range, spectra, fitted) = (p.sigma, p.range, p.spectra(), p.fitted());
     drop(p);
     let (width, height) = (img.width, img.height);
     drop(img);
@@ -429,6 +429,9 @@ pub fn prepare_run(input: &[u8], settings: JsValue, max_megapixels: u32, probe: 
     set(&obj, "bands", &to_js(&plan)?)?;
     // Correlated noise: the spectra every band needs (null for white noise).
     set(&obj, "spectra", &to_js(&spectra)?)?;
+    // The fitted noise model, which finishing and the error estimate take back instead of
+    // fitting again.
+    set(&obj, "fitted", &to_js(&fitted)?)?;
     Ok(obj.into())
 }
 
@@ -530,12 +533,18 @@ impl BandAssembler {
 }
 
 /// Last step of a split run: the method's output planes (an array of Float32Arrays) back to an
-/// image, as [`denoise`] returns it.
+/// image, as [`denoise`] returns it; `fitted` is what [`prepare_run`] gave (no second fit).
 #[wasm_bindgen(js_name = finishRun)]
-pub fn finish_run(input: &[u8], settings: JsValue, planes: &Array, max_megapixels: u32) -> Result<JsValue, JsError> {
+pub fn finish_run(
+    input: &[u8],
+    settings: JsValue,
+    fitted: JsValue,
+    planes: &Array,
+    max_megapixels: u32,
+) -> Result<JsValue, JsError> {
     let settings = settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
-    let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
+    let p = pipeline::prepared_from(&img, from_js(fitted, "the fitted noise model")?).map_err(js_err)?;
     let planes = planes_from(planes, img.width, img.height)?;
     if planes.len() != p.working.len() {
         return Err(internal("the planes sent to the worker do not match the image's channels"));
@@ -546,18 +555,19 @@ pub fn finish_run(input: &[u8], settings: JsValue, planes: &Array, max_megapixel
 }
 
 /// The error estimate (an object) from a split run's method planes and its probe pass's
-/// ([`prepare_run`] with `probe`).
+/// ([`prepare_run`] with `probe`, whose `fitted` this takes).
 #[wasm_bindgen(js_name = estimateError)]
 pub fn estimate_error(
     input: &[u8],
     settings: JsValue,
+    fitted: JsValue,
     result: &Array,
     probe: &Array,
     max_megapixels: u32,
 ) -> Result<JsValue, JsError> {
-    let settings = settings_in(settings)?;
+    settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
-    let p = pipeline::prepare(&img, &settings).map_err(js_err)?;
+    let p = pipeline::prepared_from(&img, from_js(fitted, "the fitted noise model")?).map_err(js_err)?;
     let result = planes_from(result, img.width, img.height)?;
     let probed = planes_from(probe, img.width, img.height)?;
     if result.len() != p.working.len() || probed.len() != p.working.len() {

@@ -131,8 +131,13 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   assert.throws(() => check.add(0, sums0.num, sums0.den), /does not fit its place/);
   const basic = stage(prep, null);
   const final = stage(prep, basic);
-  const r = pg.finishRun(sample, settings, [final], 64);
+  const r = pg.finishRun(sample, settings, prep.fitted, [final], 64);
   assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
+  // Finishing takes the preparing worker's noise model instead of fitting again; one that does
+  // not fit the image is refused, not used.
+  assert.deepEqual(r.report.noise, whole.report.noise);
+  assert.throws(() => pg.finishRun(sample, settings, { ...prep.fitted, estimates: [] }, [final], 64),
+    /does not belong to this image/);
   assert.throws(() => pg.runBand(settings, prep.sigma, prep.range, w, h, bands[1], prep.spectra, new Float32Array(10), new Float32Array(0), new Float32Array(0), () => {}),
     /do not match the image size/);
   // The error estimate split the same way (the probe's input prepared, its bands run, the estimate
@@ -140,7 +145,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   const oneCall = pg.denoise(sample, settings, 64, () => {}, true).report.error_estimate;
   const probePrep = pg.prepareRun(sample, settings, 64, true);
   const probed = stage(probePrep, stage(probePrep, null));
-  const split = pg.estimateError(sample, settings, [final], [probed], 64);
+  const split = pg.estimateError(sample, settings, probePrep.fitted, [final], [probed], 64);
   assert.deepEqual(split, oneCall);
   // The sample's dark background is cut off at 0 over most of the image: the estimate says so.
   assert.ok(!split.applies && /cut off at black/.test(split.note), JSON.stringify(split));
@@ -157,10 +162,10 @@ test('grainy noise: the split run gets the matching guide and still gives the wh
   assert.ok(prep.guide instanceof Float32Array && prep.guide.length === prep.width * prep.height);
   assert.ok(prep.bands.length >= 2);
   const final = splitStage(prep, splitStage(prep, null, settings), settings);
-  const r = pg.finishRun(png, settings, [final], 64);
+  const r = pg.finishRun(png, settings, prep.fitted, [final], 64);
   assert.ok(Buffer.from(r.file).equals(Buffer.from(whole.file)));
   // Without its guide the first stage matches on the noisy plane, and the result differs.
   const unguided = { ...prep, guide: null };
-  const other = pg.finishRun(png, settings, [splitStage(prep, splitStage(unguided, null, settings), settings)], 64);
+  const other = pg.finishRun(png, settings, prep.fitted, [splitStage(prep, splitStage(unguided, null, settings), settings)], 64);
   assert.ok(!Buffer.from(other.file).equals(Buffer.from(whole.file)));
 });

@@ -7,6 +7,7 @@
 //! Built on [`exp_same_everywhere`] so that the page's table is the command line's, bit for bit.
 
 use crate::synth::exp_same_everywhere;
+use serde::{Deserialize, Serialize};
 
 /// phi(t), the standard normal density.
 fn density(t: f64) -> f64 {
@@ -43,7 +44,8 @@ const T_MAX: f64 = 8.0;
 const STEPS: usize = 2800;
 
 /// The inverse of the clipped mean at one or both ends of [0, top], for noise std `sigma`.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(try_from = "ClipSpec", into = "ClipSpec")]
 pub struct ClipInverse {
     sigma: f64,
     top: f64,
@@ -51,6 +53,32 @@ pub struct ClipInverse {
     high: bool,
     /// m(t) on a regular grid of t over [T_MIN, T_MAX]: increasing, so invertible.
     table: Vec<f64>,
+}
+
+/// A [`ClipInverse`] as it crosses to the page and back: what made it; the table is made again
+/// (the same bits: [`ClipInverse::new`] depends on nothing else).
+#[derive(Serialize, Deserialize)]
+struct ClipSpec {
+    sigma: f64,
+    top: f64,
+    low: bool,
+    high: bool,
+}
+
+impl From<ClipInverse> for ClipSpec {
+    fn from(c: ClipInverse) -> Self {
+        ClipSpec { sigma: c.sigma, top: c.top, low: c.low, high: c.high }
+    }
+}
+
+impl TryFrom<ClipSpec> for ClipInverse {
+    type Error = String;
+    fn try_from(s: ClipSpec) -> Result<Self, String> {
+        if !(s.sigma.is_finite() && s.top.is_finite() && s.sigma >= 0.0 && s.top > 0.0) {
+            return Err("a clipping correction's level or range is not a finite positive number".into());
+        }
+        Ok(ClipInverse::new(s.sigma, s.top, s.low, s.high))
+    }
 }
 
 impl ClipInverse {

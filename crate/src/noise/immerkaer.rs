@@ -62,7 +62,7 @@ impl BlockStat {
 }
 
 /// Which ends of the range the data reach often enough to have clipped the noise there.
-#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize)]
+#[derive(Clone, Copy, Debug, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Clipping {
     /// Share of pixels at or below 0.
     pub low_share: f64,

@@ -9,10 +9,10 @@ pub mod vst;
 pub mod wavelet;
 
 use crate::planes::Plane;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Both estimates for one channel, in the channel's grey levels.
-#[derive(Clone, Copy, Debug, Serialize, PartialEq)]
+#[derive(Clone, Copy, Debug, Serialize, Deserialize, PartialEq)]
 pub struct NoiseEstimate {
     /// Immerkaer over the whole image.
     pub immerkaer: f64,

@@ -7,10 +7,10 @@ use super::spectrum::NoiseSpectrum;
 use super::vst::PhotonNoise;
 use crate::planes::Plane;
 use crate::settings::Settings;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// The photon model's parameters of one channel, in its grey levels, and whether each was fitted.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PhotonFit {
     /// Grey levels per photon.
     pub gain: f64,
@@ -47,7 +47,7 @@ pub enum Dependence {
 
 /// One input channel: the fitted noise-level function and, when photon noise is used, its
 /// parameters.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct ChannelNoise {
     /// The measured variance against brightness, with its fitted line and curve.
     pub level_function: NoiseLevelFunction,
@@ -59,7 +59,7 @@ pub struct ChannelNoise {
 
 /// One plane the method works on (grey, or opponent colour, after any stabilisation): its level
 /// and, for correlated noise, its spectrum.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PlaneNoise {
     /// Effective (pixel-domain) noise std in the working domain.
     pub level: f64,
@@ -70,7 +70,7 @@ pub struct PlaneNoise {
 }
 
 /// Everything said about the noise of one run.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct NoiseReport {
     /// The model's name ([`model_name`]): "white Gaussian", "Poisson-Gaussian",
     /// "brightness-dependent Gaussian", or "correlated ..." of the last two or "Gaussian".

@@ -13,10 +13,10 @@
 
 use super::immerkaer::{self, BlockStat, Clipping};
 use crate::planes::Plane;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// One intensity bin: the median block mean, the calm noise variance, and the blocks in it.
-#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct LevelPoint {
     /// Median block mean of the bin (grey level).
     pub mean: f64,
@@ -29,7 +29,7 @@ pub struct LevelPoint {
 }
 
 /// var(y) = slope * y + intercept over [low, high], with the points it was fitted to.
-#[derive(Clone, Debug, PartialEq, Serialize)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub struct NoiseLevelFunction {
     /// Slope of the line (gain, for photon noise).
     pub slope: f64,

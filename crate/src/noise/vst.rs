@@ -8,11 +8,13 @@
 //! the offset is subtracted afterwards: an approximation that holds for read noise that is not
 //! large against the signal.
 
+use serde::{Deserialize, Serialize};
+
 /// sqrt(3/2); the forward transform of 0 counts is 2 sqrt(3/8) = sqrt(3/2).
 const SQRT_3_2: f64 = 1.224_744_871_391_589;
 
 /// Poisson-Gaussian noise of a camera: gain x Poisson(photons) + offset + N(0, read^2).
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize, Deserialize)]
 pub struct PhotonNoise {
     /// Grey levels per photon.
     pub gain: f64,
@@ -45,13 +47,40 @@ impl PhotonNoise {
 /// of unit variance to first order (the delta method). Tabulated on a fine grid over the range and
 /// inverted by interpolation; the inverse is the algebraic one, whose bias (about f'' var / 2) is
 /// small where the curve changes slowly against the noise, as a camera's gamma does.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(try_from = "CurveTable", into = "CurveTable")]
 pub struct CurveVst {
     step: f64,
     table: Vec<f64>,
 }
 
 const CURVE_STEPS: usize = 4096;
+
+/// A [`CurveVst`] as it crosses to the page and back: checked on the way in, so a table that
+/// came from outside cannot make `forward` or `inverse` index past its end.
+#[derive(Serialize, Deserialize)]
+struct CurveTable {
+    step: f64,
+    table: Vec<f64>,
+}
+
+impl From<CurveVst> for CurveTable {
+    fn from(c: CurveVst) -> Self {
+        CurveTable { step: c.step, table: c.table }
+    }
+}
+
+impl TryFrom<CurveTable> for CurveVst {
+    type Error = String;
+    fn try_from(t: CurveTable) -> Result<Self, String> {
+        let increasing = t.table.windows(2).all(|w| w[1] >= w[0]);
+        let finite = t.table.iter().all(|v| v.is_finite());
+        if !(t.step.is_finite() && t.step > 0.0 && t.table.len() >= 2 && increasing && finite) {
+            return Err("a brightness curve's table is not a finite increasing table".into());
+        }
+        Ok(CurveVst { step: t.step, table: t.table })
+    }
+}
 
 impl CurveVst {
     /// The transform of the curve `variance` over [0, `top`].
@@ -92,7 +121,7 @@ impl CurveVst {
 
 /// How one channel is stabilised: photon noise by the generalised Anscombe transform, any other
 /// brightness-dependent noise by its measured curve.
-#[derive(Clone, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
 pub enum Stabiliser {
     /// Photon noise, by the generalised Anscombe transform.
     Photon(PhotonNoise),
