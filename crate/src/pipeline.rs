@@ -364,7 +364,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
     // where a channel's spectrum is correlated its level is the spectrum's.
     let channel_level = |c: &Plane| match spectrum::estimate(c, 8) {
         Some(sp) if sp.is_coloured() => sp.pixel_variance().sqrt(),
-        _ => noise::estimate(c, Some(top)).chosen(),
+        _ => noise::chosen(c, Some(top)),
     };
     let levels: Vec<f64> = if fitting && img.channels.len() == 3 {
         crate::planes::per_plane(&img.channels, channel_level)

@@ -36,10 +36,15 @@ impl NoiseEstimate {
 pub fn estimate(p: &Plane, top: Option<f64>) -> NoiseEstimate {
     NoiseEstimate {
         immerkaer: immerkaer::sigma(p),
-        immerkaer_calm_blocks: match top {
-            Some(t) => immerkaer::sigma_calm_blocks_clipped(p, t),
-            None => immerkaer::sigma_calm_blocks(p),
-        },
+        immerkaer_calm_blocks: chosen(p, top),
         wavelet_mad: wavelet::sigma_mad(p),
+    }
+}
+
+/// [`NoiseEstimate::chosen`] of [`estimate`] alone, without the two estimates only reported.
+pub fn chosen(p: &Plane, top: Option<f64>) -> f64 {
+    match top {
+        Some(t) => immerkaer::sigma_calm_blocks_clipped(p, t),
+        None => immerkaer::sigma_calm_blocks(p),
     }
 }
