@@ -6,6 +6,7 @@ import { Pane, paramColumns } from './panes.js';
 import { runBatch, stopBatch } from './batch.js';
 import { showNoise, hideNoise } from './noiseview.js';
 import { wireSweep } from './sweep.js';
+import { lowestError } from './verdict.js';
 
 const STORE = 'patchgraph.settings.v1';
 const names = ['A', 'B', 'C', 'D'];
@@ -246,12 +247,13 @@ function csv() {
 
 app.estimating = () => $('estimate-errors').checked;
 
-// With two or more results estimated, the one of lowest estimated error is marked. The error,
-// not the PSNR, is compared: differences between settings hold even where the noise level is
-// estimated and the PSNR itself is not given.
+// With two or more results, all estimated, the one of lowest estimated error is marked
+// (lowestError). The error, not the PSNR, is compared: differences between settings hold even
+// where the noise level is estimated and the PSNR itself is not given.
 function markBest() {
-  const scored = app.panes.map((p) => [p, p.metricsRow()]).filter(([, m]) => m && m.estimated_mse !== null);
-  const best = scored.length >= 2 ? scored.reduce((a, b) => (b[1].estimated_mse < a[1].estimated_mse ? b : a))[0] : null;
+  const done = app.panes.map((p) => [p, p.metricsRow()]).filter(([, m]) => m);
+  const at = lowestError(done.map(([, m]) => m.estimated_mse));
+  const best = at >= 0 ? done[at][0] : null;
   for (const p of app.panes) p.q('.best-note').hidden = p !== best;
 }
 

@@ -32,3 +32,11 @@ function residualVerdict(m, report) {
   if (m.residual_std_over_sigma < 0.7) return 'Less than the estimated noise was removed: some noise remains.';
   return 'The removed part looks like noise.';
 }
+
+// Which of several results' estimated errors (null where none applies) is the lowest: its index,
+// or -1. Named only with two or more and every one estimated: a result without an estimate may be
+// the best of all (the command line's sweep follows the same rule).
+export function lowestError(errors) {
+  if (errors.length < 2 || errors.some((e) => e === null || e === undefined)) return -1;
+  return errors.reduce((best, e, i) => (e < errors[best] ? i : best), 0);
+}

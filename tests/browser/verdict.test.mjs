@@ -4,7 +4,7 @@
 // tell the user that noise remains; for white noise it still does. No browser needed.
 import { test } from 'node:test';
 import assert from 'node:assert/strict';
-import { verdict } from '../../www/verdict.js';
+import { verdict, lowestError } from '../../www/verdict.js';
 
 const row = (ratio, lag1, edge) => ({ residual_std_over_sigma: ratio, residual_lag1_correlation: lag1, residual_edge_correlation: edge });
 const report = (model, estimate = null) => ({ noise: { model }, error_estimate: estimate });
@@ -28,4 +28,13 @@ test('white noise keeps its residual checks; edges removed are named for any noi
   // The error estimate's clause follows the residual sentence.
   const e = { applies: true, gain_db: 3.04 };
   assert.match(verdict(row(0.95, 0.0, 0.0), report('white Gaussian', e)), /looks like noise\. The estimated error says the result is 3\.0 dB closer/);
+});
+
+test('the lowest estimated error is named only when every result has an estimate', () => {
+  // Invariant: the minimum, first of equals; none when any result lacks an estimate (one that
+  // applies to fewer pixels or not at all may hide the best result) or there is only one.
+  assert.equal(lowestError([3.1, 1.2, 2.0, 1.2]), 1);
+  assert.equal(lowestError([3.1, null, 2.0]), -1);
+  assert.equal(lowestError([2.0]), -1);
+  assert.equal(lowestError([]), -1);
 });

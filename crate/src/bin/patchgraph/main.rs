@@ -68,7 +68,7 @@ enum Command {
         json: bool,
     },
     /// One parameter over several values, each result's error estimated without a clean image;
-    /// writes a CSV (one row per value) and names the value of lowest estimated error.
+    /// writes a CSV (one row per value) and names the value of lowest estimated error when every value has one.
     Sweep(sweep::SweepArgs),
     /// PSNR and SSIM of TEST against the clean image CLEAN, per channel and overall.
     Metrics {
