@@ -1,5 +1,6 @@
 // "Sweep a parameter": Setting A's settings copied into four settings with one parameter at four
-// evenly spaced values, then all run, so the estimated errors say which value suits the image.
+// evenly spaced values (in ratio for the pixel graph's strength), then all run, so the estimated
+// errors say which value suits the image.
 const $ = (id) => document.getElementById(id);
 const SETTINGS = 4;
 
@@ -13,15 +14,22 @@ const PARAMETERS = {
     search: { key: 'patch_graph.search_radius', set: (s, v) => { s.patch_graph.search_radius = v; }, get: (s) => s.patch_graph.search_radius },
   },
   'pixel-graph': {
-    strength: { key: 'pixel_graph.strength', set: (s, v) => { s.pixel_graph.strength = v; }, get: (s) => s.pixel_graph.strength },
+    // Its best value spans 0.5 to 16 over the development images (BENCHMARKS.md, "Pixel graph:
+    // strength picked by the error estimate"), so it is offered over that span, spaced in ratio.
+    strength: { key: 'pixel_graph.strength', set: (s, v) => { s.pixel_graph.strength = v; }, get: (s) => s.pixel_graph.strength,
+      span: [0.5, 16], ratio: true },
     cut: { key: 'pixel_graph.cut_threshold', set: (s, v) => { s.pixel_graph.cut_threshold = v; }, get: (s) => s.pixel_graph.cut_threshold },
   },
 };
 
-// `values(from, to)`: SETTINGS values from `from` to `to`, rounded to whole numbers where the
-// parameter is one (duplicates then dropped).
-export function sweepValues(from, to, whole) {
-  const v = Array.from({ length: SETTINGS }, (_, i) => from + ((to - from) * i) / (SETTINGS - 1));
+// SETTINGS values from `from` to `to`, evenly spaced (with `ratio` and both ends above 0, each
+// the same multiple of the last), rounded to whole numbers where the parameter is one
+// (duplicates then dropped).
+export function sweepValues(from, to, whole, ratio = false) {
+  const at = (i) => (ratio && from > 0 && to > 0
+    ? from * (to / from) ** (i / (SETTINGS - 1))
+    : from + ((to - from) * i) / (SETTINGS - 1));
+  const v = Array.from({ length: SETTINGS }, (_, i) => at(i));
   const r = v.map((x) => (whole ? Math.round(x) : Number(x.toPrecision(6))));
   return [...new Set(r)];
 }
@@ -41,8 +49,9 @@ export function wireSweep(app) {
     if (params()[keep]) sel.value = keep;
     const p = params()[sel.value];
     const now = p.get(first().settings);
-    $('sweep-from').value = Math.max(p.min, Number((now * 0.7).toPrecision(3)));
-    $('sweep-to').value = Math.min(p.max, Number((now * 1.3).toPrecision(3)));
+    const [from, to] = p.span || [now * 0.7, now * 1.3];
+    $('sweep-from').value = Math.max(p.min, Number(from.toPrecision(3)));
+    $('sweep-to').value = Math.min(p.max, Number(to.toPrecision(3)));
   };
   $('sweep-open').addEventListener('click', () => {
     form.hidden = !form.hidden;
@@ -63,7 +72,7 @@ export function wireSweep(app) {
     if (unsaved.length && !confirm(`Settings ${unsaved.map((q) => q.name).join(', ')} have results that were not saved. Replace them?`)) return;
     const base = structuredClone(first().settings);
     for (const q of app.panes.filter((x) => x !== first())) { q.stop(); q.saved = true; app.removePane(q); }
-    const values = sweepValues(from, to, p.whole);
+    const values = sweepValues(from, to, p.whole, p.ratio);
     values.forEach((v, i) => {
       const s = structuredClone(base);
       p.set(s, v);
