@@ -136,26 +136,26 @@ struct WindowStats {
     kept: Vec<(f64, f64)>,
 }
 
+/// Per index 0..n, its place among the distinct `edges` in first-seen order (u32::MAX: not
+/// among them), and how many there are.
+fn places(edges: &[usize], n: usize) -> (Vec<u32>, usize) {
+    let mut at = vec![u32::MAX; n];
+    let mut count = 0;
+    for &e in edges {
+        if at[e] == u32::MAX {
+            at[e] = count as u32;
+            count += 1;
+        }
+    }
+    (at, count)
+}
+
 impl WindowStats {
     /// Tables of `p` for rectangles whose edges are among `xs` (0..=width) and `ys` (0..=height).
     fn new(p: &Plane, xs: &[usize], ys: &[usize]) -> Self {
         let (w, h) = (p.width + 1, p.height + 1);
-        let mut col_at = vec![u32::MAX; w];
-        let mut cols = 0;
-        for &x in xs {
-            if col_at[x] == u32::MAX {
-                col_at[x] = cols as u32;
-                cols += 1;
-            }
-        }
-        let mut row_at = vec![u32::MAX; h];
-        let mut rows = 0;
-        for &y in ys {
-            if row_at[y] == u32::MAX {
-                row_at[y] = rows as u32;
-                rows += 1;
-            }
-        }
+        let (col_at, cols) = places(xs, w);
+        let (row_at, rows) = places(ys, h);
         let mut kept = vec![(0.0, 0.0); rows * cols];
         let (mut sum, mut sq) = (vec![0.0; w], vec![0.0; w]);
         // Table row 0 is zeros; row y + 1 adds image row y's running sums to row y.
