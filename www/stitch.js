@@ -40,7 +40,7 @@ export function splitRun(bytes, settings, onProgress, keep = false) {
 export function splitEstimate(bytes, settings, resultPlanes, onProgress) {
   return split(bytes, settings, onProgress, async (run, prep, planes) => {
     onProgress(0.97, 'estimating the error');
-    const r = await run('estimate', { bytes: bytes.slice(), settings, fitted: prep.fitted, result: resultPlanes, probe: planes },
+    const r = await run('estimate', { bytes: bytes.slice(), fitted: prep.fitted, result: resultPlanes, probe: planes },
       [...planes, ...resultPlanes].map((p) => p.buffer));
     return r.estimate;
   }, true);

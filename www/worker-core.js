@@ -42,7 +42,7 @@ export function installWorker(pg, ready, build) {
         case 'assemblerStart': assembler = new pg.BandAssembler(m.bands, m.width, m.height, m.planes); r = {}; break;
         case 'assemblerAdd': assembler.add(m.index, m.num, m.den); r = {}; break;
         case 'assemblerFinish': r = { planes: assembler.finish() }; assembler = null; break;
-        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.settings, m.fitted, m.result, m.probe, maxMegapixels) }; break;
+        case 'estimate': r = { estimate: pg.estimateError(m.bytes, m.fitted, m.result, m.probe, maxMegapixels) }; break;
         case 'band':
           r = pg.runBand(m.settings, m.sigma, m.range, m.width, m.height, m.band, m.spectra, m.noisy, m.basic, m.guide, progress);
           break;

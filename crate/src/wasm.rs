@@ -555,17 +555,15 @@ pub fn finish_run(
 }
 
 /// The error estimate (an object) from a split run's method planes and its probe pass's
-/// ([`prepare_run`] with `probe`, whose `fitted` this takes).
+/// ([`prepare_run`] with `probe`, whose `fitted` this takes: the settings play no further part).
 #[wasm_bindgen(js_name = estimateError)]
 pub fn estimate_error(
     input: &[u8],
-    settings: JsValue,
     fitted: JsValue,
     result: &Array,
     probe: &Array,
     max_megapixels: u32,
 ) -> Result<JsValue, JsError> {
-    settings_in(settings)?;
     let img = decode(input, max_megapixels)?;
     let p = pipeline::prepared_from(&img, from_js(fitted, "the fitted noise model")?).map_err(js_err)?;
     let result = planes_from(result, img.width, img.height)?;

@@ -145,7 +145,7 @@ test('the split run gives the whole-image result: prepare, bands in any order, f
   const oneCall = pg.denoise(sample, settings, 64, () => {}, true).report.error_estimate;
   const probePrep = pg.prepareRun(sample, settings, 64, true);
   const probed = stage(probePrep, stage(probePrep, null));
-  const split = pg.estimateError(sample, settings, probePrep.fitted, [final], [probed], 64);
+  const split = pg.estimateError(sample, probePrep.fitted, [final], [probed], 64);
   assert.deepEqual(split, oneCall);
   // The sample's dark background is cut off at 0 over most of the image: the estimate says so.
   assert.ok(!split.applies && /cut off at black/.test(split.note), JSON.stringify(split));
