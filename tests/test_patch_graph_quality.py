@@ -51,15 +51,19 @@ def test_colour_keeps_channels_and_beats_the_noise(tmp_path, patchgraph):
 # Floors per kind of image, blind, sigma 25 and 50, 0.3 dB under what was measured when they were
 # set (the per-image table in BENCHMARKS.md): a regression on any kind of image fails here.
 KIND_FLOORS = {
-    ("retina256", 25): 38.65, ("retina256", 50): 35.95,       # smooth biological tissue
-    ("phantom256", 25): 32.95, ("phantom256", 50): 28.0,      # piecewise constant, black clipped background
-    ("blobs256", 25): 37.1, ("blobs256", 50): 32.15,          # smooth shapes
-    ("micrograph256", 25): 35.45, ("micrograph256", 50): 31.5,  # ours: fluorescence, dim background
-    # Ours: point sources on black. Lowered by 0.5 dB when flat groups began to grow and by 0.1 to
-    # 0.25 dB more with their raised threshold (trades made on purpose: each gained on the set and most on
-    # the smooth images peers led on; the stars stay about 5 dB ahead of the peers).
-    ("stars256", 25): 34.85, ("stars256", 50): 30.7,
-    ("clock", 25): 40.05, ("clock", 50): 36.1,                # flat surfaces, text
+    ("retina256", 25): 39.05, ("retina256", 50): 37.15,       # smooth biological tissue
+    ("phantom256", 25): 32.85, ("phantom256", 50): 27.9,      # piecewise constant, black clipped background
+    ("blobs256", 25): 37.3, ("blobs256", 50): 32.45,          # smooth shapes
+    # Ours: fluorescence, dim background. Lowered by 0.3 dB when a group's mean patch began to
+    # carry the noise its overlapping patches share (a trade made on purpose: the set gained 0.1 dB
+    # in the mean, retina and clock at 50 1.2 dB, where peers led; the micrograph stays 5 dB ahead).
+    ("micrograph256", 25): 35.1, ("micrograph256", 50): 31.25,
+    # Ours: point sources on black. Lowered by 0.5 dB when flat groups began to grow, by 0.1 to
+    # 0.25 dB more with their raised threshold, and by 0.4 at 50 with the mean patch's shared noise
+    # (trades made on purpose: each gained on the set and most on the smooth images peers led on;
+    # the stars stay about 5 dB ahead of the peers).
+    ("stars256", 25): 35.15, ("stars256", 50): 30.3,
+    ("clock", 25): 40.7, ("clock", 50): 37.3,                 # flat surfaces, text
 }
 
 
@@ -74,11 +78,12 @@ def test_kind_of_image_floor(tmp_path, patchgraph, name, sigma):
 def test_grainy_noise_on_a_smooth_image_floor(tmp_path, patchgraph):
     # Grainy noise (white noise filtered by [1 2 1] / 4 each way: the real-noise bench's "(grainy)"
     # rows) on the smooth retina: 36.14 dB before the first stage matched on a half-whitened
-    # plane, 36.85 after (a tuned non-local means: 40.2); the floor sits 0.3 dB under.
+    # plane, 36.85 after, 38.94 once a group's mean patch carried the grain its patches share
+    # (a tuned non-local means: 40.2); the floor sits 0.3 dB under.
     import realnoise
     clean = devset.user_like_images()["retina256"]
     out = denoise(patchgraph, tmp_path, realnoise.grainy(clean))
-    assert peak_signal_noise_ratio(clean, out, data_range=255) >= 36.55
+    assert peak_signal_noise_ratio(clean, out, data_range=255) >= 38.6
 
 
 # The pixel graph joined by similarity (pixel_graph.graph = non-local), blind: floors 0.3 dB under

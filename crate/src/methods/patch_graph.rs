@@ -17,6 +17,7 @@ use crate::noise::spectrum::NoiseSpectrum;
 use crate::patch::aggregate::{kaiser_window, Accumulator};
 use crate::patch::guide::noise_lag_covariance;
 use crate::patch::matching::{match_groups, match_groups_across, patch_ssim, MatchParams};
+use crate::patch::overlap::{coefficient_correlation, mean_share};
 use crate::patch::transform::{combine_rows, dct2, dct_matrix, graph_fourier_rows, idct2};
 use crate::patch::Group;
 use crate::planes::Plane;
@@ -267,10 +268,21 @@ const FLAT_THRESHOLD: f32 = 1.222;
 /// structure: texture that passed the low-frequency test).
 const FLAT_ENERGY_STDS: f64 = 3.0;
 
-/// The stage-1 threshold factor of a group's graph frequencies past the first, from the
-/// transformed coefficients `t` (n rows of k^2) and the per-coefficient noise variances.
-fn flat_threshold_factor(t: &[f32], var: &[f32], kk: usize, grown: bool) -> f32 {
-    if !grown || t.len() <= kk {
+/// The stage-1 threshold factor of a group's graph frequencies past the first, from its
+/// [`flatness`].
+fn flat_threshold_factor(flat: f64, grown: bool) -> f32 {
+    if grown {
+        1.0 + (FLAT_THRESHOLD - 1.0) * flat as f32
+    } else {
+        1.0
+    }
+}
+
+/// How flat a group is, 0 to 1, from its transformed coefficients `t` (n rows of k^2) and the
+/// per-coefficient noise variances: 1 where its graph frequencies past the first hold no more
+/// energy than the noise explains, 0 from [`FLAT_ENERGY_STDS`] stds above that.
+fn flatness(t: &[f32], var: &[f32], kk: usize) -> f64 {
+    if t.len() <= kk {
         return 1.0;
     }
     let energy: f64 = t[kk..]
@@ -280,9 +292,15 @@ fn flat_threshold_factor(t: &[f32], var: &[f32], kk: usize, grown: bool) -> f32 
     let (m, sd) = ((t.len() - kk) as f64, (2.0 * (t.len() - kk) as f64).sqrt());
     // A ramp, not a step: the result then moves continuously with the input, as the error
     // estimate's probe assumes (a step read coffee at sigma 50 0.43 dB high).
-    let share = ((m + (FLAT_ENERGY_STDS + 2.0) * sd - energy) / ((FLAT_ENERGY_STDS + 1.0) * sd)).clamp(0.0, 1.0);
-    1.0 + (FLAT_THRESHOLD - 1.0) * share as f32
+    ((m + (FLAT_ENERGY_STDS + 2.0) * sd - energy) / ((FLAT_ENERGY_STDS + 1.0) * sd)).clamp(0.0, 1.0)
 }
+
+/// How much of the shared noise of a group's mean patch ([`MeanNoise`]) each stage counts, times
+/// the group's [`flatness`]: in full, textured groups lost detail (the fine texture a hard
+/// threshold at the mean's true noise removes); counted only in flat groups, and in the Wiener
+/// stage at half (its gains follow the basic estimate, and in full cost the fur and tissue
+/// camera JPEGs 0.2 dB more). Measured on both development sets (DEVELOPERS.md).
+const SHARED_NOISE_COUNTED: [f32; 2] = [1.0, 0.5];
 
 /// How far (pixels) from a reference's position its neighbouring slices are searched. Slices of a
 /// stack are in register, so a structure continues near where it is.
@@ -298,10 +316,41 @@ struct CoeffNoise {
     var: Vec<f32>,
     thr: Vec<f32>,
     rel: Vec<f64>,
+    /// Which of the stage's correlation tables ([`coefficient_correlation`]) this plane's noise has.
+    table: usize,
 }
 
+/// The noise of a group's mean patch (its first graph frequency) per coefficient, as
+/// [`CoeffNoise`] has it for one patch. Patches that overlap, or lie close under grainy noise,
+/// share noise, so their mean keeps more of it than 1 / n: sum over pairs of u0_i u0_i'
+/// rho_f(d_ii') times a patch's variance ([`mean_share`]). The group's other graph frequencies
+/// then hold less than a patch's, which is left as it is (lowering their thresholds to match cost
+/// the smooth micrograph 0.9 dB under grainy noise).
+struct MeanNoise {
+    var: Vec<f32>,
+    thr: Vec<f32>,
+    rel: Vec<f64>,
+}
+
+impl MeanNoise {
+    /// `share` per coefficient ([`mean_share`]), `counted` how much of its excess over 1 to take.
+    fn new(cn: &CoeffNoise, share: &[f32], counted: f32, n: usize) -> Self {
+        // A table from a truncated covariance need not be positive definite: keep the share in
+        // the range a variance ratio can have.
+        let m: Vec<f32> = share.iter().map(|s| 1.0 + counted * (s.clamp(MIN_SHARE, n as f32) - 1.0)).collect();
+        MeanNoise {
+            var: cn.var.iter().zip(&m).map(|(v, m)| v * m).collect(),
+            thr: cn.thr.iter().zip(&m).map(|(t, m)| t * m.sqrt()).collect(),
+            rel: cn.rel.iter().zip(&m).map(|(r, m)| r * f64::from(*m)).collect(),
+        }
+    }
+}
+
+/// The least share of a patch's noise the mean patch is taken to keep.
+const MIN_SHARE: f32 = 0.05;
+
 impl CoeffNoise {
-    fn new(k: usize, sigma: f64, lambda: f64, spectrum: Option<&NoiseSpectrum>) -> Self {
+    fn new(k: usize, sigma: f64, lambda: f64, spectrum: Option<&NoiseSpectrum>, table: usize) -> Self {
         // A plane without noise (the chroma of a grey picture saved as colour) measures a
         // spectrum of zeros; the floor keeps the Wiener gain 0 / 0 from becoming NaN.
         let floor = 1e-6 * sigma * sigma;
@@ -314,6 +363,7 @@ impl CoeffNoise {
             var: std.iter().map(|s| (s * s) as f32).collect(),
             thr: std.iter().map(|s| (lambda * s) as f32).collect(),
             rel: std.iter().map(|s| if sigma2 > 0.0 { s * s / sigma2 } else { 1.0 }).collect(),
+            table,
         }
     }
 }
@@ -335,6 +385,8 @@ pub struct Stage<'a> {
     lf: Vec<usize>,
     /// Per plane.
     noise: Vec<CoeffNoise>,
+    /// The correlation tables the planes' noise has ([`CoeffNoise::table`]): one for white noise.
+    correlation: Vec<Vec<f32>>,
     /// Noise variance of a luminance patch (matching), and summed over its low-frequency
     /// coefficients, DC included (group graph).
     match_var: f64,
@@ -388,8 +440,23 @@ impl<'a> Stage<'a> {
         {
             return Err(Error::Internal("the noise spectra do not fit the planes and patch size".into()));
         }
-        let noise: Vec<CoeffNoise> =
-            (0..noisy.len()).map(|c| CoeffNoise::new(k, sigma, prof.lambda, spectra.map(|sp| &sp[c]))).collect();
+        // One table per distinct spectrum (planes of a grey picture saved as colour share one).
+        let mut correlation = Vec::new();
+        let mut seen: Vec<Option<&NoiseSpectrum>> = Vec::new();
+        let mut noise = Vec::with_capacity(noisy.len());
+        for c in 0..noisy.len() {
+            let sp = spectra.map(|sp| &sp[c]);
+            let table = match seen.iter().position(|s| s.map(|x| &x.variances) == sp.map(|x| &x.variances)) {
+                Some(t) => t,
+                None => {
+                    let lag_cov = sp.map(|x| noise_lag_covariance(x, false));
+                    correlation.push(coefficient_correlation(k, lag_cov.as_deref()));
+                    seen.push(sp);
+                    seen.len() - 1
+                }
+            };
+            noise.push(CoeffNoise::new(k, sigma, prof.lambda, sp, table));
+        }
         let lf = low_freq_indices(k);
         let (match_var, lf_var) = match spectra {
             Some(sp) => (sp[0].pixel_variance(), lf.iter().map(|&i| sp[0].variances[i]).sum::<f64>()),
@@ -412,6 +479,7 @@ impl<'a> Stage<'a> {
             window: kaiser_window(prof.patch, prof.beta),
             lf,
             noise,
+            correlation,
             match_var,
             lf_var,
             noise_cov,
@@ -604,20 +672,39 @@ impl<'a> Stage<'a> {
         };
         let mut filtered: Vec<Vec<f32>> = Vec::with_capacity(channels);
         let mut weight_den = 0.0f64;
+        let counted = SHARED_NOISE_COUNTED[usize::from(basic_c.is_some())];
+        // Per correlation table, the group's mean-patch share, made when a plane first needs it.
+        let mut shares: Vec<Option<Vec<f32>>> = vec![None; self.correlation.len()];
         for ch in 0..channels {
             let mut t = across(&noisy_c[ch]);
             let cn = &self.noise[ch];
+            let flat = flatness(&t, &cn.var, kk);
+            let share = shares[cn.table].get_or_insert_with(|| {
+                let mut out = vec![0.0f32; kk];
+                if n > 1 {
+                    let (rho, pos) = (&self.correlation[cn.table], &group.positions[..n]);
+                    mean_share(rho, k, pos, |i| group.slice(i), |i| u[i * n], &mut out);
+                } else {
+                    out.iter_mut().for_each(|v| *v = 1.0);
+                }
+                out
+            });
+            let mean = MeanNoise::new(cn, share, counted * flat as f32, n);
+            // Row 0 (the mean patch) with its own noise, the other graph frequencies a patch's.
+            let row_noise =
+                |j: usize| if j == 0 { (&mean.var, &mean.thr, &mean.rel) } else { (&cn.var, &cn.thr, &cn.rel) };
             match &basic_c {
                 None => {
-                    let raise = flat_threshold_factor(&t, &cn.var, kk, n > self.group_size());
+                    let raise = flat_threshold_factor(flat, n > self.group_size());
                     let mut kept = 0.0f64;
                     // Row by row (graph frequency j), so no coefficient pays for an index division.
                     for (j, row) in t.chunks_mut(kk).enumerate() {
+                        let (_, thr, rel) = row_noise(j);
+                        let factor = if j == 0 { 1.0 } else { raise };
                         for (f, v) in row.iter_mut().enumerate() {
-                            let thr = if j == 0 { cn.thr[f] } else { cn.thr[f] * raise };
                             // The group's mean patch DC always stays.
-                            if (j == 0 && f == 0) || v.abs() >= thr {
-                                kept += cn.rel[f];
+                            if (j == 0 && f == 0) || v.abs() >= thr[f] * factor {
+                                kept += rel[f];
                             } else {
                                 *v = 0.0;
                             }
@@ -628,11 +715,12 @@ impl<'a> Stage<'a> {
                 Some(b) => {
                     let tb = across(&b[ch]);
                     let mut gsum = 0.0f32;
-                    for (row, row_b) in t.chunks_mut(kk).zip(tb.chunks(kk)) {
+                    for (j, (row, row_b)) in t.chunks_mut(kk).zip(tb.chunks(kk)).enumerate() {
+                        let (var, _, rel) = row_noise(j);
                         for (f, (v, vb)) in row.iter_mut().zip(row_b).enumerate() {
-                            let g = vb * vb / (vb * vb + cn.var[f]);
+                            let g = vb * vb / (vb * vb + var[f]);
                             *v *= g;
-                            gsum += g * g * cn.rel[f] as f32;
+                            gsum += g * g * rel[f] as f32;
                         }
                     }
                     weight_den += f64::from(gsum);

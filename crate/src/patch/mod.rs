@@ -4,6 +4,7 @@
 pub mod aggregate;
 pub mod guide;
 pub mod matching;
+pub mod overlap;
 pub mod transform;
 
 /// A group of similar patches: top-left corners (in the coordinates of the plane they were matched
