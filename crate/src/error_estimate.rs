@@ -52,7 +52,7 @@ const STEP_PER_NOISE: f64 = 0.05;
 impl Probe {
     /// The probe for a prepared run: a step of 0.05 of the mean noise std.
     pub fn for_run(p: &Prepared) -> Probe {
-        Probe { step: STEP_PER_NOISE * p.noise.mean_level.max(1e-6), seed: 0x0005_3055_e57e }
+        Probe { step: STEP_PER_NOISE * p.model.noise.mean_level.max(1e-6), seed: 0x0005_3055_e57e }
     }
 
     /// The +-1 pattern: one sign per sample, channel after channel (a SplitMix64 bit each).
@@ -95,13 +95,13 @@ fn too_clipped(share: f64) -> String {
 /// Why the model rules the estimate out (correlated noise, no noise), without looking at the
 /// pixels; None when it does not.
 fn model_rules_out(p: &Prepared) -> Option<String> {
-    if p.noise.planes.iter().any(|q| q.spectrum.is_some()) {
+    if p.model.noise.planes.iter().any(|q| q.spectrum.is_some()) {
         return Some(
             "the noise is spatially correlated, and the estimate holds only for noise that is independent from pixel to pixel"
                 .into(),
         );
     }
-    (p.sigma <= 0.0).then(|| "there is no noise to remove at sigma 0".into())
+    (p.model.sigma <= 0.0).then(|| "there is no noise to remove at sigma 0".into())
 }
 
 /// Why no estimate can be made for a prepared run of `img`, in a sentence; None when it can.
@@ -110,7 +110,7 @@ pub fn not_applicable(img: &Image, p: &Prepared) -> Option<String> {
     if let Some(why) = model_rules_out(p) {
         return Some(why);
     }
-    if p.clip.is_some() {
+    if p.model.clip.is_some() {
         let top = f64::from(img.max_value());
         let total = (img.width * img.height * img.channels.len()).max(1);
         let away: usize = img.channels.iter().map(|c| near_clipped(c, top).iter().filter(|x| !**x).count()).sum();
@@ -135,7 +135,7 @@ pub struct PixelVariance {
 impl PixelVariance {
     /// The per-pixel noise variance of a prepared run; `top` is the image's largest sample value.
     pub fn of(p: &Prepared, top: f64) -> Self {
-        PixelVariance { sigma: p.sigma, stabilisers: p.stabilisers.clone(), top }
+        PixelVariance { sigma: p.model.sigma, stabilisers: p.model.stabilisers.clone(), top }
     }
 
     /// White noise of std `sigma` everywhere.

@@ -75,26 +75,16 @@ pub fn blind_sigma(estimates: &[NoiseEstimate]) -> f64 {
 }
 
 /// An image made ready for a method: the noise model applied (`working`: the image's own planes,
-/// borrowed, unless photon noise is stabilised), with the sigma and range the method works with
-/// and the noise report. [`method_planes`] gives the planes a method takes.
+/// borrowed, unless photon noise is stabilised), with the range the method works with and the
+/// fitted model (sigma, transforms, noise report). [`method_planes`] gives the planes a method takes.
 #[derive(Clone)]
 pub struct Prepared<'a> {
-    /// Per input channel, when the working domain is stabilised (photon noise or a measured curve).
-    pub stabilisers: Option<Vec<Stabiliser>>,
-    /// Per input channel, when the image is clipped at black or white and not stabilised.
-    pub clip: Option<Vec<ClipInverse>>,
+    /// The noise model, fitted or given.
+    pub model: Fitted,
     /// The planes the methods work on (stabilised or clip-corrected where needed).
     pub working: Cow<'a, [Plane]>,
     /// The peak value of the working planes.
     pub range: f64,
-    /// The noise std in the working domain.
-    pub sigma: f64,
-    /// True when sigma was estimated, not given.
-    pub estimated: bool,
-    /// The noise estimate per input channel.
-    pub estimates: Vec<NoiseEstimate>,
-    /// The noise model used, fitted or given, with its reasons.
-    pub noise: NoiseReport,
 }
 
 impl Prepared<'_> {
@@ -105,12 +95,12 @@ impl Prepared<'_> {
 
     /// Per method plane, the noise spectra when the noise is correlated.
     pub fn spectra(&self) -> Option<Vec<NoiseSpectrum>> {
-        self.noise.planes.iter().map(|p| p.spectrum.clone()).collect()
+        self.model.noise.planes.iter().map(|p| p.spectrum.clone()).collect()
     }
 
     /// The noise variance of the luminance (first) method plane, as matching sees it.
     pub fn luma_level(&self) -> f64 {
-        self.noise.planes.first().filter(|p| p.spectrum.is_some()).map_or(self.sigma, |p| p.level)
+        self.model.noise.planes.first().filter(|p| p.spectrum.is_some()).map_or(self.model.sigma, |p| p.level)
     }
 }
 
@@ -293,26 +283,18 @@ fn working_planes<'a>(img: &'a Image, stabilisers: Option<&[Stabiliser]>) -> (Co
 /// bytes).
 #[derive(Clone, Debug, Serialize, Deserialize)]
 pub struct Fitted {
-    stabilisers: Option<Vec<Stabiliser>>,
-    clip: Option<Vec<ClipInverse>>,
-    sigma: f64,
-    estimated: bool,
-    estimates: Vec<NoiseEstimate>,
-    noise: NoiseReport,
-}
-
-impl Prepared<'_> {
-    /// The fitted model, to be handed to [`prepared_from`].
-    pub fn fitted(&self) -> Fitted {
-        Fitted {
-            stabilisers: self.stabilisers.clone(),
-            clip: self.clip.clone(),
-            sigma: self.sigma,
-            estimated: self.estimated,
-            estimates: self.estimates.clone(),
-            noise: self.noise.clone(),
-        }
-    }
+    /// Per input channel, when the working domain is stabilised (photon noise or a measured curve).
+    pub stabilisers: Option<Vec<Stabiliser>>,
+    /// Per input channel, when the image is clipped at black or white and not stabilised.
+    pub clip: Option<Vec<ClipInverse>>,
+    /// The noise std in the working domain.
+    pub sigma: f64,
+    /// True when sigma was estimated, not given.
+    pub estimated: bool,
+    /// The noise estimate per input channel.
+    pub estimates: Vec<NoiseEstimate>,
+    /// The noise model used, fitted or given, with its reasons.
+    pub noise: NoiseReport,
 }
 
 /// [`prepare`]'s result for `img` from a model it fitted before on the same image.
@@ -326,9 +308,8 @@ pub fn prepared_from(img: &Image, fitted: Fitted) -> Result<Prepared<'_>> {
     if !fits {
         return Err(Error::Internal("the fitted noise model does not belong to this image".into()));
     }
-    let Fitted { stabilisers, clip, sigma, estimated, estimates, noise } = fitted;
-    let (working, range) = working_planes(img, stabilisers.as_deref());
-    Ok(Prepared { stabilisers, clip, working, range, sigma, estimated, estimates, noise })
+    let (working, range) = working_planes(img, fitted.stabilisers.as_deref());
+    Ok(Prepared { model: fitted, working, range })
 }
 
 /// Validates the settings and prepares a run: the noise model (fitted or given), the
@@ -464,7 +445,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         planes,
         fallback,
     };
-    Ok(Prepared { stabilisers, clip, working, range, sigma, estimated, estimates, noise })
+    Ok(Prepared { model: Fitted { stabilisers, clip, sigma, estimated, estimates, noise }, working, range })
 }
 
 /// What `noise: "auto"` makes of an image, with the 8 x 8 spectrum of every method plane (white
@@ -481,7 +462,7 @@ pub struct NoiseFit {
 pub fn fit_noise(img: &Image, settings: &Settings) -> Result<NoiseFit> {
     let p = prepare(img, settings)?;
     let spectra_8 = method_planes(&p).iter().map(|q| spectrum::estimate(q, 8)).collect();
-    Ok(NoiseFit { report: p.noise, spectra_8 })
+    Ok(NoiseFit { report: p.model.noise, spectra_8 })
 }
 
 /// The planes a method works on: the working planes, colour ones in the opponent space
@@ -497,7 +478,7 @@ pub fn run_method(
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<MethodOutput> {
-    let (sigma, range) = (prepared.sigma, prepared.range);
+    let (sigma, range) = (prepared.model.sigma, prepared.range);
     match settings.method {
         Method::PixelGraph => methods::pixel_graph::denoise(planes_in, sigma, range, &settings.pixel_graph, progress),
         Method::PatchGraph => {
@@ -576,8 +557,9 @@ pub fn estimate_error(
     let result = img.with_channels(prepared.image_planes(result));
     let probed = img.with_channels(prepared.image_planes(probed));
     let var = PixelVariance::of(prepared, top);
-    let e = error_estimate::estimate(img, &result, &probed, &Probe::for_run(prepared), &var, prepared.clip.is_some());
-    if prepared.estimated {
+    let e =
+        error_estimate::estimate(img, &result, &probed, &Probe::for_run(prepared), &var, prepared.model.clip.is_some());
+    if prepared.model.estimated {
         e.for_estimated_level()
     } else {
         e
@@ -610,7 +592,7 @@ impl Prepared<'_> {
     /// The method planes of another image of the same size under this model, not refitted: what
     /// the error estimate's second pass denoises.
     pub fn method_planes_of(&self, img: &Image) -> Vec<Plane> {
-        let working: Vec<Plane> = match &self.stabilisers {
+        let working: Vec<Plane> = match &self.model.stabilisers {
             None => img.channels.clone(),
             Some(st) => img.channels.iter().zip(st).map(|(c, p)| map_plane(c, |v| p.forward(v))).collect(),
         };
@@ -619,7 +601,7 @@ impl Prepared<'_> {
 
     /// A method's planes back to the image's channels in its grey levels, as [`finish`] does.
     pub fn image_planes(&self, planes: Vec<Plane>) -> Vec<Plane> {
-        model_back(colour_back(planes), self.stabilisers.as_deref(), self.clip.as_deref())
+        model_back(colour_back(planes), self.model.stabilisers.as_deref(), self.model.clip.as_deref())
     }
 }
 
@@ -632,7 +614,7 @@ pub fn finish(img: &Image, settings: &Settings, prepared: Prepared<'_>, output: 
             "the method's result holds values that are not numbers; nothing was written".into(),
         ));
     }
-    let Prepared { stabilisers, clip, working, sigma, estimated, estimates, noise, .. } = prepared;
+    let Prepared { model: Fitted { stabilisers, clip, sigma, estimated, estimates, noise }, working, .. } = prepared;
     let MethodOutput { planes, cut_map, work_units } = output;
     // The method's planes go as soon as they are converted: large images hold one copy at a time.
     let planes = colour_back(planes);
@@ -678,6 +660,6 @@ pub fn group_at(img: &Image, settings: &Settings, x: usize, y: usize) -> Result<
     let spectra = p.spectra();
     let s = &settings.patch_graph;
     let spectrum = spectra.as_ref().and_then(|sp| sp.first());
-    let group = methods::patch_graph::group_at(&luma, spectrum, p.sigma, p.luma_level(), p.range, s, x, y)?;
-    Ok((group, methods::patch_graph::profile(s, p.sigma * 255.0 / p.range).patch))
+    let group = methods::patch_graph::group_at(&luma, spectrum, p.model.sigma, p.luma_level(), p.range, s, x, y)?;
+    Ok((group, methods::patch_graph::profile(s, p.model.sigma * 255.0 / p.range).patch))
 }

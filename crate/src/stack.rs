@@ -226,7 +226,7 @@ fn run_slice_stage(
 ) -> Result<Vec<Plane>> {
     let own = held.get(&z).ok_or_else(|| Error::Internal("a slice is not ready".into()))?;
     let p = &own.prepared;
-    if p.sigma <= 0.0 {
+    if p.model.sigma <= 0.0 {
         return Ok(own.planes.clone());
     }
     fn first(s: &Slice) -> Result<&[Plane]> {
@@ -248,7 +248,15 @@ fn run_slice_stage(
             .collect::<Result<_>>()?,
         _ => Vec::new(),
     };
-    let stage =
-        Stage::new(&own.planes, basic, 0, own.img.height, p.sigma, p.range, &settings.patch_graph, spectra.as_deref())?;
+    let stage = Stage::new(
+        &own.planes,
+        basic,
+        0,
+        own.img.height,
+        p.model.sigma,
+        p.range,
+        &settings.patch_graph,
+        spectra.as_deref(),
+    )?;
     run_stage(&stage.with_slices(context, bases)?.with_guides(guides.iter().collect())?, progress)
 }

@@ -405,7 +405,7 @@ pub fn prepare_run(input: &[u8], settings: JsValue, max_megapixels: u32, probe: 
     // A probe pass that cannot give an estimate is not run: no bands, and the estimate says why.
     let skip = probe && probed.is_none();
     let planes = probed.unwrap_or_else(|| pipeline::method_planes(&p));
-    let (sigma, range, spectra, fitted) = (p.sigma, p.range, p.spectra(), p.fitted());
+    let (sigma, range, spectra, fitted) = (p.model.sigma, p.range, p.spectra(), p.model.clone());
     drop(p);
     let (width, height) = (img.width, img.height);
     drop(img);

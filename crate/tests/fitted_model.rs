@@ -61,16 +61,16 @@ fn a_model_read_back_rebuilds_what_prepare_built() {
     let (mut stabilised, mut clip, mut spectra) = (false, false, false);
     for (img, settings) in &cases {
         let fresh = pipeline::prepare(img, settings).expect("prepared");
-        let again = pipeline::prepared_from(img, round_trip(&fresh.fitted())).expect("rebuilt");
-        assert_eq!(again.stabilisers, fresh.stabilisers);
-        assert_eq!(again.clip, fresh.clip);
+        let again = pipeline::prepared_from(img, round_trip(&fresh.model)).expect("rebuilt");
+        assert_eq!(again.model.stabilisers, fresh.model.stabilisers);
+        assert_eq!(again.model.clip, fresh.model.clip);
         assert_eq!(again.working, fresh.working, "working planes");
         assert_eq!(again.range.to_bits(), fresh.range.to_bits());
-        assert_eq!(again.sigma.to_bits(), fresh.sigma.to_bits());
-        assert_eq!(again.estimates, fresh.estimates);
-        assert_eq!(again.noise, fresh.noise);
-        stabilised |= fresh.stabilisers.is_some();
-        clip |= fresh.clip.is_some();
+        assert_eq!(again.model.sigma.to_bits(), fresh.model.sigma.to_bits());
+        assert_eq!(again.model.estimates, fresh.model.estimates);
+        assert_eq!(again.model.noise, fresh.model.noise);
+        stabilised |= fresh.model.stabilisers.is_some();
+        clip |= fresh.model.clip.is_some();
         spectra |= fresh.spectra().is_some();
     }
     // The cases reach every part that crosses (else the check above proves less than it says).
@@ -80,12 +80,12 @@ fn a_model_read_back_rebuilds_what_prepare_built() {
 #[test]
 fn a_model_that_does_not_fit_is_refused() {
     let grey = clipped();
-    let colour_model = pipeline::prepare(&grainy_colour(), &Settings::default()).expect("prepared").fitted();
+    let colour_model = pipeline::prepare(&grainy_colour(), &Settings::default()).expect("prepared").model;
     assert!(pipeline::prepared_from(&grey, colour_model).is_err(), "three channels' model for a grey image");
     // A photon frame's model with its table broken (a brightness curve must increase): refused
     // when read, before any table is indexed.
     let frame = photon_frame();
-    let fitted = pipeline::prepare(&frame, &Settings::default()).expect("prepared").fitted();
+    let fitted = pipeline::prepare(&frame, &Settings::default()).expect("prepared").model;
     let mut v = serde_json::to_value(&fitted).expect("written");
     v["stabilisers"] = serde_json::json!([{ "Curve": { "step": 1.0, "table": [1.0, 3.0] } }]);
     assert!(serde_json::from_value::<Fitted>(v.clone()).is_ok(), "an increasing table is read");
