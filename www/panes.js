@@ -230,8 +230,8 @@ export class Pane {
     for (const el of this.el.querySelectorAll('[data-for-method]')) el.hidden = el.dataset.forMethod !== this.settings.method;
   }
 
-  // With "Estimate sigma" on, the sigma box shows the image's estimate (in the file's units), so
-  // unticking it starts from a sensible value.
+  // With "Estimate sigma" on, the sigma box shows the image's estimate, or the sigma the last run
+  // used (in the file's units), so unticking it starts from a sensible value.
   showEstimate(sigma) {
     const box = this.q('.controls').elements.sigma;
     if (this.settings.sigma === 'auto' && Number.isFinite(sigma)) box.value = Number(sigma.toPrecision(4));
@@ -320,6 +320,10 @@ export class Pane {
       }
       this.result = r;
       this.saved = false;
+      // The sigma box takes the sigma this run used: unticking "Estimate sigma" then starts from
+      // this run (a sigma given with noise fitted keeps the fitted grain and channel scaling).
+      // Photon and brightness-curve models are fitted only without a sigma: the image's estimate stays.
+      if (!r.report.noise.channels.some((c) => c.photon || c.curve_used)) this.showEstimate(this.fileSigma(r));
       const mib = (b) => `${Math.round(b / 1048576)} MiB`;
       const peakBytes = r.peakWorkerBytes || r.memoryBytes;
       const workers = r.workers || 1;

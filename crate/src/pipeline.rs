@@ -347,7 +347,16 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         Some(sp) if sp.is_coloured() => sp.pixel_variance().sqrt(),
         _ => noise::chosen(c, Some(top)),
     };
-    let levels: Vec<f64> = if fitting && img.channels.len() == 3 {
+    // With `noise: auto`, a sigma given by hand sets the strength of the noise the fit finds:
+    // the colour channels' scaling and grainy noise's shape are kept, at that sigma (else a
+    // lower sigma, the way to ask for gentler cleaning, would also turn grainy noise into white).
+    // Photon and brightness-curve models are fitted only without it.
+    let given = match settings.sigma {
+        Sigma::Value(v) if settings.noise == NoiseModel::Auto => Some(v),
+        _ => None,
+    };
+    let shaped = fitting || given.is_some();
+    let levels: Vec<f64> = if shaped && img.channels.len() == 3 {
         crate::planes::per_plane(&img.channels, channel_level)
     } else {
         vec![1.0; img.channels.len()]
@@ -355,7 +364,7 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
     let mean_channel = levels.iter().sum::<f64>() / levels.len().max(1) as f64;
     let spread =
         levels.iter().copied().fold(0.0, f64::max) / levels.iter().copied().fold(f64::INFINITY, f64::min).max(1e-12);
-    let scaled = fitting && dependence == Dependence::None && levels.len() == 3 && spread > CHANNEL_SPREAD;
+    let scaled = shaped && dependence == Dependence::None && levels.len() == 3 && spread > CHANNEL_SPREAD;
     let stabilisers: Option<Vec<Stabiliser>> = match dependence {
         Dependence::None if scaled => {
             Some(levels.iter().map(|l| Stabiliser::Scale(mean_channel / l.max(1e-12))).collect())
@@ -378,13 +387,25 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
         Sigma::Value(v) => (v, false),
         Sigma::Auto(_) => (blind_sigma(&estimates), true),
     };
-    let correlated = if fitting { correlated_noise(&working, range, settings) } else { None };
-    let (planes, limited) = match correlated {
-        Some((planes, s, limited)) => {
+    let correlated = if shaped { correlated_noise(&working, range, settings) } else { None };
+    let (planes, limited) = match (correlated, given) {
+        (Some((planes, s, _)), Some(v)) => {
+            let f = v / s.max(1e-300);
+            let scale = |p: PlaneNoise| PlaneNoise {
+                level: p.level * f,
+                spectrum: p.spectrum.map(|sp| {
+                    let var = sp.pixel_variance() * f * f;
+                    sp.scaled_to(var)
+                }),
+                ..p
+            };
+            (planes.into_iter().map(scale).collect(), None)
+        }
+        (Some((planes, s, limited)), None) => {
             sigma = s;
             (planes, limited)
         }
-        None => (vec![PlaneNoise { level: sigma, colour_ratio: 1.0, spectrum: None }; working.len()], None),
+        (None, _) => (vec![PlaneNoise { level: sigma, colour_ratio: 1.0, spectrum: None }; working.len()], None),
     };
     let is_correlated = planes.iter().any(|p| p.spectrum.is_some());
     // One white level because the fit could not see a dependence (too few brightness levels),
@@ -393,6 +414,12 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
     let fallback = (fitting && unfit).then(|| "the fit fell back to one white level".to_string());
     let sentence = if fitting {
         model::explain(dependence, is_correlated, unfit, curve_set_aside, &channels, &planes)
+    } else if is_correlated {
+        format!(
+            "Grainy noise (low frequencies carry {:.1} times the noise of high ones), at the sigma the settings give: \
+             each frequency keeps its share of the fitted noise.",
+            planes[0].colour_ratio
+        )
     } else {
         format!("{} noise, as the settings ask.", model::model_name(dependence, false))
     };

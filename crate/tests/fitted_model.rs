@@ -2,7 +2,8 @@
 //! (or computes its error estimate) takes the preparing worker's model instead of fitting again.
 //! Invariant checked: the model, written out and read back, rebuilds what `prepare` built (the
 //! same transforms, working planes, sigma and report), for photon noise, clipped noise and
-//! grainy colour noise; a model that does not fit the image, or a broken table, is refused.
+//! grainy colour noise; a model that does not fit the image, or a broken table, is refused. And a
+//! sigma given with the noise fitted scales the fitted model instead of replacing it.
 
 use patchgraph::pipeline::{self, Fitted};
 use patchgraph::planes::{BitDepth, Image, Plane};
@@ -91,4 +92,28 @@ fn a_model_that_does_not_fit_is_refused() {
     assert!(serde_json::from_value::<Fitted>(v.clone()).is_ok(), "an increasing table is read");
     v["stabilisers"] = serde_json::json!([{ "Curve": { "step": 1.0, "table": [3.0, 1.0] } }]);
     assert!(serde_json::from_value::<Fitted>(v).is_err(), "a decreasing one is not");
+}
+
+#[test]
+fn a_sigma_given_with_auto_noise_scales_the_fitted_grain() {
+    // Invariant: with `noise: auto`, a sigma given by hand keeps the fitted grain's shape (and the
+    // colour channels' scaling: this picture's blue is noisier) and sets its strength: every
+    // plane's spectrum is the fitted one times (given / fitted)^2, coefficient by coefficient, and
+    // the run's sigma is the given one (not white noise of that sigma).
+    use patchgraph::settings::Sigma;
+    let img = grainy_colour();
+    let fitted = pipeline::prepare(&img, &Settings::default()).expect("fitted");
+    let s = fitted.model.sigma;
+    let half = Settings { sigma: Sigma::Value(s / 2.0), ..Settings::default() };
+    let given = pipeline::prepare(&img, &half).expect("given");
+    assert_eq!(given.model.sigma, s / 2.0);
+    let (a, b) = (fitted.spectra().expect("grainy when fitted"), given.spectra().expect("still grainy"));
+    for (fa, fb) in a.iter().zip(&b) {
+        for (va, vb) in fa.variances.iter().zip(&fb.variances) {
+            assert!((vb - va / 4.0).abs() <= 1e-9 * va.max(1e-12), "{vb} for {va}");
+        }
+    }
+    // The other explicit models are left as they ask: white noise of the given sigma.
+    let white = Settings { noise: NoiseModel::Gaussian, ..half };
+    assert!(pipeline::prepare(&img, &white).expect("white").spectra().is_none());
 }

@@ -7,6 +7,7 @@ import { execFileSync } from 'node:child_process';
 import { readFileSync, writeFileSync } from 'node:fs';
 import { join } from 'node:path';
 import { start, finishedText, ROOT, OUT } from './harness.mjs';
+import { grainyPng } from './fixtures.mjs';
 
 const CLI = process.env.PATCHGRAPH_BIN || join(ROOT, 'target', 'release', 'patchgraph');
 const SAMPLES = join(ROOT, 'sample-images');
@@ -115,6 +116,32 @@ test('two settings run side by side, differ, and match the CLI', async () => {
     assert.ok(shown.includes(`${page_.toFixed(2)} dB`), shown);
   }
   await page.screenshot({ path: join(OUT, 'two-settings.png'), fullPage: true });
+});
+
+test('after a run the sigma box holds the sigma it used; lowered by hand, the grain is kept', async () => {
+  // Grainy noise: the quick estimate shown on opening reads its fine grain (far below the level
+  // the fit finds), so unticking "Estimate sigma" must start from the run's own sigma. The CLI's
+  // --json report on the same file is the reference for that sigma.
+  const file = join(OUT, 'grainy-160.png');
+  writeFileSync(file, grainyPng(160));
+  await page.setInputFiles('#file', file);
+  await page.waitForFunction(() => /grainy-160\.png: 160/.test(document.getElementById('source-info').textContent));
+  const pane = page.locator('.pane').nth(0);
+  await pane.locator('select[name=method]').selectOption('patch-graph');
+  const box = pane.locator('input[name=sigma]');
+  const opened = Number(await box.inputValue());
+  await runPane(0);
+  const cli = JSON.parse(execFileSync(CLI, ['denoise', file, '-o', join(OUT, 'grainy-cli.png'), '--json'], { encoding: 'utf8' }));
+  const used = cli.sigma;
+  assert.match(cli.noise_model.model, /correlated/);
+  assert.equal(Number(await box.inputValue()), Number(used.toPrecision(4)));
+  assert.ok(Math.abs(opened - used) > 0.2 * used, `the opening estimate ${opened} was already ${used}`);
+  // Half that sigma by hand: the noise model stays grainy (not white noise of that sigma).
+  await pane.locator('input[name=sigma-auto]').uncheck();
+  await box.fill(String(Number((used / 2).toPrecision(4))));
+  await box.dispatchEvent('change');
+  await runPane(0);
+  assert.match(await pane.locator('.metrics').textContent(), /correlated Gaussian/);
 });
 
 test('the views switch and the patch group of a clicked point is outlined', async () => {

@@ -132,7 +132,8 @@ pub struct DenoiseArgs {
     /// patch-graph (default, best quality) or pixel-graph (fast).
     #[arg(long, value_enum)]
     pub method: Option<Method>,
-    /// Noise sigma in the input's grey levels, or "auto" to estimate it.
+    /// Noise sigma in the input's grey levels, or "auto" to estimate it. With --noise auto (the
+    /// default) a given sigma sets the strength of the fitted noise (grainy noise keeps its shape).
     #[arg(long, allow_hyphen_values = true)]
     pub sigma: Option<String>,
     #[command(flatten)]
