@@ -70,8 +70,9 @@ function describe(info, fileInfo = info) {
   const shrunk = info.viewFactor > 1 ? `; shown at 1/${info.viewFactor} size, saved results are full size` : '';
   const many = fileInfo.units > 1 ? `, ${fileInfo.units} images (pages or channels)` : '';
   const blank = fileInfo.blankPixels ? `, ${fileInfo.blankPixels} blank pixels (left as they are)` : '';
-  // Sigma in the file's own units: float data are worked on as a scaled copy.
-  const sigma = info.sigma * info.scale;
+  // Sigma in the file's own units: float data are worked on as a scaled copy. The noise fit's,
+  // once it has arrived (see takeFitSigma), else the quick estimate made on opening.
+  const sigma = (info.fitSigma ?? info.sigma) * info.scale;
   const digits = sigma >= 1 ? 2 : Math.min(6, 2 - Math.floor(Math.log10(sigma || 1)));
   return `${info.width} × ${info.height}, ${kind}, ${info.sample} ${fileInfo.format}${many}${blank}, ` +
     `estimated sigma ${sigma.toFixed(digits)}${shrunk}`;
@@ -109,8 +110,19 @@ async function showUnit(k) {
 function refreshNoise(src, bytes) {
   hideNoise($('noise-fit'));
   call('noise', { bytes: bytes.slice() })
-    .then((n) => { if (app.source === src && src.bytes === bytes) showNoise($('noise-fit'), n); })
+    .then((n) => { if (app.source === src && src.bytes === bytes) { showNoise($('noise-fit'), n); takeFitSigma(src, n); } })
     .catch((e) => { hideNoise($('noise-fit')); console.warn(`noise fit: ${e.message}`); });
+}
+
+// The sigma a run with the noise fitted uses replaces the quick opening estimate (for grainy
+// noise that reads only the fine grain) in the image line and in the sigma boxes of settings that
+// fit the noise and have not run yet; not for photon or brightness-curve noise, whose sigma is
+// not in grey levels.
+function takeFitSigma(src, n) {
+  if (n.channels.some((c) => c.photon || c.curve_used) || !Number.isFinite(n.sigma)) return;
+  src.info.fitSigma = n.sigma;
+  $('source-info').textContent = `${src.name}: ${describe(src.info, src.fileInfo)}`;
+  for (const p of app.panes) if (p.settings.noise === 'auto' && !p.result) p.showEstimate(n.sigma * src.info.scale);
 }
 
 async function openSource(name, bytes, fromSample = false) {

@@ -482,6 +482,9 @@ pub struct NoiseFit {
     pub report: NoiseReport,
     /// The 8 x 8 noise spectrum of each method plane; None where the noise is white.
     pub spectra_8: Vec<Option<NoiseSpectrum>>,
+    /// The sigma a run with these settings uses (its working domain: grey levels unless photon
+    /// or brightness-curve noise is stabilised).
+    pub sigma: f64,
 }
 
 /// The noise model of an image as `prepare` makes it: fitted where the settings say auto, the
@@ -489,7 +492,7 @@ pub struct NoiseFit {
 pub fn fit_noise(img: &Image, settings: &Settings) -> Result<NoiseFit> {
     let p = prepare(img, settings)?;
     let spectra_8 = method_planes(&p).iter().map(|q| spectrum::estimate(q, 8)).collect();
-    Ok(NoiseFit { report: p.model.noise, spectra_8 })
+    Ok(NoiseFit { sigma: p.model.sigma, report: p.model.noise, spectra_8 })
 }
 
 /// The planes a method works on: the working planes, colour ones in the opponent space

@@ -230,7 +230,8 @@ pub fn open(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
 }
 
 /// The noise as `noise: "auto"` fits it, as an object: {model, sentence, fallback, channels (each with
-/// its level function's points and line, and photon parameters when used), planes, spectra_8}.
+/// its level function's points and line, and photon parameters when used), planes, spectra_8,
+/// sigma (what a run with the noise fitted uses)}.
 #[wasm_bindgen(js_name = fitNoise)]
 pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> {
     let img = decode(input, max_megapixels)?;
@@ -246,6 +247,7 @@ pub fn fit_noise(input: &[u8], max_megapixels: u32) -> Result<JsValue, JsError> 
             "k": s.k, "variances": s.variances, "ratio": s.colour_ratio(), "correlated": s.is_coloured()
         }))).collect::<Vec<_>>(),
         "bitDepth": img.depth.bits(),
+        "sigma": fit.sigma,
     });
     to_js(&v)
 }
