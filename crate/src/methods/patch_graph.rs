@@ -679,20 +679,23 @@ impl<'a> Stage<'a> {
             let mut t = across(&noisy_c[ch]);
             let cn = &self.noise[ch];
             let flat = flatness(&t, &cn.var, kk);
-            let share = shares[cn.table].get_or_insert_with(|| {
-                let mut out = vec![0.0f32; kk];
-                if n > 1 {
+            // Where none of the shared noise is counted (a single patch, a group with structure),
+            // the mean patch has a patch's noise: the same values without the pairs' sums.
+            let weight = counted * flat as f32;
+            let mean = (n > 1 && weight > 0.0).then(|| {
+                let share = shares[cn.table].get_or_insert_with(|| {
+                    let mut out = vec![0.0f32; kk];
                     let (rho, pos) = (&self.correlation[cn.table], &group.positions[..n]);
                     mean_share(rho, k, pos, |i| group.slice(i), |i| u[i * n], &mut out);
-                } else {
-                    out.iter_mut().for_each(|v| *v = 1.0);
-                }
-                out
+                    out
+                });
+                MeanNoise::new(cn, share, weight, n)
             });
-            let mean = MeanNoise::new(cn, share, counted * flat as f32, n);
             // Row 0 (the mean patch) with its own noise, the other graph frequencies a patch's.
-            let row_noise =
-                |j: usize| if j == 0 { (&mean.var, &mean.thr, &mean.rel) } else { (&cn.var, &cn.thr, &cn.rel) };
+            let row_noise = |j: usize| match (&mean, j) {
+                (Some(m), 0) => (&m.var, &m.thr, &m.rel),
+                _ => (&cn.var, &cn.thr, &cn.rel),
+            };
             match &basic_c {
                 None => {
                     let raise = flat_threshold_factor(flat, n > self.group_size());
