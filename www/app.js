@@ -2,7 +2,7 @@
 // exports results, settings and metrics. All computation runs in workers (tasks.js).
 import { call } from './tasks.js';
 import { view, onViewChange, applyTo, fit, pixelForPixel, zoomAt, setImageSize } from './view.js';
-import { Pane, paramColumns } from './panes.js';
+import { Pane, paramColumns, sigmaInGreyLevels } from './panes.js';
 import { runBatch, stopBatch } from './batch.js';
 import { showNoise, hideNoise } from './noiseview.js';
 import { wireSweep } from './sweep.js';
@@ -116,10 +116,9 @@ function refreshNoise(src, bytes) {
 
 // The sigma a run with the noise fitted uses replaces the quick opening estimate (for grainy
 // noise that reads only the fine grain) in the image line and in the sigma boxes of settings that
-// fit the noise and have not run yet; not for photon or brightness-curve noise, whose sigma is
-// not in grey levels.
+// fit the noise and have not run yet, where it is in grey levels.
 function takeFitSigma(src, n) {
-  if (n.channels.some((c) => c.photon || c.curve_used) || !Number.isFinite(n.sigma)) return;
+  if (!sigmaInGreyLevels(n.channels) || !Number.isFinite(n.sigma)) return;
   src.info.fitSigma = n.sigma;
   $('source-info').textContent = `${src.name}: ${describe(src.info, src.fileInfo)}`;
   for (const p of app.panes) if (p.settings.noise === 'auto' && !p.result) p.showEstimate(n.sigma * src.info.scale);

@@ -154,6 +154,11 @@ const mean = (a) => a.reduce((x, y) => x + y, 0) / a.length;
 // What sigma is measured in when the noise was evened out before the method ran (the report's
 // channels say how): photon noise and a measured brightness curve both map the fitted noise to
 // one unit; channels merely scaled to one level stay in grey levels.
+// Whether a run's sigma is in grey levels, so that a sigma given by hand means the same: not for
+// photon or brightness-curve noise, which are fitted only without one (their sigma is after
+// evening the noise out).
+export const sigmaInGreyLevels = (channels) => !channels.some((c) => c.photon || c.curve_used);
+
 function stabilisedUnit(channels, greyUnit) {
   if (channels.some((c) => c.photon)) return 'after evening out photon noise (1 = the fitted photon and read noise)';
   if (channels.some((c) => c.curve_used)) return 'after evening out the noise over brightness (1 = the measured curve)';
@@ -322,8 +327,7 @@ export class Pane {
       this.saved = false;
       // The sigma box takes the sigma this run used: unticking "Estimate sigma" then starts from
       // this run (a sigma given with noise fitted keeps the fitted grain and channel scaling).
-      // Photon and brightness-curve models are fitted only without a sigma: the image's estimate stays.
-      if (!r.report.noise.channels.some((c) => c.photon || c.curve_used)) this.showEstimate(this.fileSigma(r));
+      if (sigmaInGreyLevels(r.report.noise.channels)) this.showEstimate(this.fileSigma(r));
       const mib = (b) => `${Math.round(b / 1048576)} MiB`;
       const peakBytes = r.peakWorkerBytes || r.memoryBytes;
       const workers = r.workers || 1;

@@ -29,11 +29,12 @@ const PARAMETERS = {
 // the same multiple of the last, to three digits: 2.52, not 2.51984), rounded to whole numbers
 // where the parameter is one (duplicates then dropped).
 export function sweepValues(from, to, whole, ratio = false) {
-  const at = (i) => (ratio && from > 0 && to > 0
+  const geometric = ratio && from > 0 && to > 0;
+  const at = (i) => (geometric
     ? from * (to / from) ** (i / (SETTINGS - 1))
     : from + ((to - from) * i) / (SETTINGS - 1));
   const v = Array.from({ length: SETTINGS }, (_, i) => at(i));
-  const digits = ratio && from > 0 && to > 0 ? 3 : 6;
+  const digits = geometric ? 3 : 6;
   const r = v.map((x) => (whole ? Math.round(x) : Number(x.toPrecision(digits))));
   return [...new Set(r)];
 }
