@@ -204,7 +204,11 @@ fn correlated_noise(working: &[Plane], range: f64, settings: &Settings) -> Optio
     }
     let fine = crate::noise::immerkaer::sigma_calm_blocks(&planes[0]);
     let mut limited = limit_luma(&mut first, fine);
-    let sigma_of = |sp: &[NoiseSpectrum]| sp.iter().map(|s| s.pixel_variance().sqrt()).sum::<f64>() / sp.len() as f64;
+    // The planes' root mean square level: the opponent transform is orthonormal, so this is the
+    // noise of each input channel in its own grey levels (the mean of the levels was not: a grey
+    // picture saved as colour, whose noise is all luminance, read a third of its own).
+    let sigma_of =
+        |sp: &[NoiseSpectrum]| (sp.iter().map(NoiseSpectrum::pixel_variance).sum::<f64>() / sp.len() as f64).sqrt();
     let k = methods::patch_graph::profile(&settings.patch_graph, sigma_of(&first) * 255.0 / range).patch;
     let spectra = if k == 8 {
         first
@@ -446,14 +450,22 @@ pub fn prepare<'a>(img: &'a Image, settings: &Settings) -> Result<Prepared<'a>> 
     } else {
         sentence
     };
+    // The limit acted on the luminance plane; the sentence gives the run's sigma before and after,
+    // in the input's grey levels as the sigma boxes and reports show it.
+    let limited = limited.map(|l| {
+        let others: f64 = planes.iter().skip(1).map(|p| p.level * p.level).sum();
+        let n = planes.len().max(1) as f64;
+        Limit { from: ((l.from * l.from + others) / n).sqrt(), to: ((l.to * l.to + others) / n).sqrt(), ..l }
+    });
     let sentence = match limited {
         Some(Limit { from, to, by: LimitBy::Colour }) => format!(
-            "{sentence} The brightness noise measured {from:.1} but is taken as {to:.1}, {LUMA_PER_CHROMA} times the colour \
-             noise: a colour sensor's noise shows in colour too, so the rest is likely fine texture."
+            "{sentence} The noise measured {from:.1} but is taken as {to:.1}, its brightness part held to {LUMA_PER_CHROMA} \
+             times its colour part: a colour sensor's noise shows in colour too, so the rest is likely fine texture."
         ),
         Some(Limit { from, to, by: LimitBy::FineGrain }) => format!(
-            "{sentence} The grainy noise measured {from:.1} but is taken as {to:.1}, {FINE_GRAIN_LIMIT} times its fine grain \
-             on the calmest areas: compression thins a noise's fine grain but leaves some, so the rest is likely fine texture."
+            "{sentence} The grainy noise measured {from:.1} but is taken as {to:.1}, its brightness part held to \
+             {FINE_GRAIN_LIMIT} times its fine grain on the calmest areas: compression thins a noise's fine grain but leaves \
+             some, so the rest is likely fine texture."
         ),
         None => sentence,
     };

@@ -135,6 +135,10 @@ fn noise_and_metrics_print_their_json_fields() {
     assert!(o.status.success());
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     assert!(v["sigma"].is_number());
+    // The level a run uses, in the input's grey levels and in its working domain (the same here:
+    // nothing is stabilised, so both are the one fitted level).
+    assert!(v["level"].as_f64().is_some_and(|l| l >= 0.0), "{v}");
+    assert_eq!(v["level"].as_f64(), v["run_sigma"].as_f64());
     let o = run(&["metrics", a.to_str().unwrap(), a.to_str().unwrap(), "--json"]);
     let v: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
     // Identical images: SSIM is exactly 1 and PSNR is infinite (JSON null).

@@ -136,3 +136,27 @@ fn grey_texture_filling_a_grey_picture_is_held_to_its_fine_grain() {
     assert!(sentence.contains("times its fine grain"), "{sentence}");
     assert!(used < measured && (used - l[0]).abs() <= 0.05 + 0.01 * l[0], "{l:?} {sentence}");
 }
+
+#[test]
+fn a_grey_picture_saved_as_colour_gets_the_sigma_of_its_grey_original() {
+    // Invariant: the opponent transform is orthonormal, so the same grainy grey picture stored
+    // as one channel or as three equal channels has the same noise per channel, and a run's sigma
+    // (the root mean square over the method planes) is the same for both, within rounding of the
+    // fits. Its noise is all luminance (sqrt 3 times a channel's, the colour planes empty): the
+    // mean of the planes' levels read a third of the luminance, about 0.58 of the true level.
+    let (w, h) = (256usize, 256usize);
+    let n = grainy(w, h, 6.0, &mut Rng::new(23));
+    let grey = Plane::from_fn(w, h, |x, y| (90.0 + 0.25 * x as f64 + 0.15 * y as f64 + n[y * w + x]).round() as f32);
+    let one = Image { width: w, height: h, depth: BitDepth::Eight, channels: vec![grey.clone()], alpha: None };
+    let three = Image { channels: vec![grey.clone(), grey.clone(), grey], ..one.clone() };
+    let (a, b) = (
+        pipeline::fit_noise(&one, &Settings::default()).unwrap(),
+        pipeline::fit_noise(&three, &Settings::default()).unwrap(),
+    );
+    assert_eq!(b.report.model, "correlated Gaussian", "{}", b.report.sentence);
+    assert!((b.sigma / a.sigma - 1.0).abs() < 0.02, "one channel {} three {}", a.sigma, b.sigma);
+    // The run's sigma is the report's level (one level, no brightness dependence).
+    assert!((b.sigma / b.report.mean_level - 1.0).abs() < 1e-9, "{} {}", b.sigma, b.report.mean_level);
+    // And near the noise drawn: std 6 (a measured figure of the fit's accuracy, 15%).
+    assert!((b.sigma / 6.0 - 1.0).abs() < 0.15, "{}", b.sigma);
+}

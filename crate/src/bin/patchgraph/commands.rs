@@ -371,17 +371,26 @@ pub fn noise(input: &Path, number: usize, model: &ModelArgs, json_out: bool) -> 
                        "photon": c.photon})
             })
             .collect();
-        let v = json!({"image": number, "images": doc.units(), "sigma": sigma, "channels": channels, "bit_depth": img.depth.bits(),
+        let v = json!({"image": number, "images": doc.units(), "sigma": sigma, "level": fit.report.mean_level,
+                       "run_sigma": fit.sigma, "channels": channels, "bit_depth": img.depth.bits(),
                        "model": fit.report.model, "explanation": fit.report.sentence, "fallback": fit.report.fallback,
                        "planes": fit.report.planes, "spectra_8x8": fit.spectra_8,
                        "rule": "per channel, Immerkaer on the calmest 16 x 16 blocks away from clipped levels; the mean over channels"});
         outln!("{v}");
     } else {
+        // The level a run uses leads; the white estimate alone is shown where it differs (grainy
+        // noise hides from it, so it reads far low there).
+        let level = fit.report.mean_level;
+        let white = if (sigma - level).abs() > 0.05 * level {
+            format!("; a white-noise estimate alone reads {sigma:.3}")
+        } else {
+            String::new()
+        };
         outln!(
-            "{}: {} noise; white-noise sigma {:.3} (grey levels of {} bits)",
+            "{}: {} noise, std {:.3} over the image (grey levels of {} bits{white})",
             input.display(),
             fit.report.model,
-            sigma,
+            level,
             img.depth.bits()
         );
         outln!("  {}", fit.report.sentence);
