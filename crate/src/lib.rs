@@ -27,6 +27,7 @@ pub mod removed_detail;
 pub mod run_file;
 pub mod setting_fields;
 pub mod settings;
+pub mod simd;
 pub mod stack;
 pub mod synth;
 #[cfg(target_arch = "wasm32")]

@@ -550,6 +550,23 @@ impl<'a> Stage<'a> {
     /// Processes the references of one tile (image coordinates); returns its accumulator, in image
     /// coordinates, over the tile's crop (crop coordinates inside).
     fn tile(&self, refs: &[(usize, usize)], progress: &dyn Progress) -> Result<Accumulator> {
+        #[cfg(target_arch = "x86_64")]
+        if crate::simd::wide() {
+            // SAFETY: the processor has AVX2 and FMA (checked at run time by `wide`).
+            return unsafe { self.tile_wide(refs, progress) };
+        }
+        self.tile_body(refs, progress)
+    }
+
+    /// [`Stage::tile`] compiled for AVX2 and FMA (see [`crate::simd`]).
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2,fma")]
+    fn tile_wide(&self, refs: &[(usize, usize)], progress: &dyn Progress) -> Result<Accumulator> {
+        self.tile_body(refs, progress)
+    }
+
+    #[inline(always)]
+    fn tile_body(&self, refs: &[(usize, usize)], progress: &dyn Progress) -> Result<Accumulator> {
         let w = self.noisy[0].width;
         let k = self.prof.patch;
         let s = self.prof.search;
@@ -633,6 +650,7 @@ impl<'a> Stage<'a> {
     }
 
     /// `noisy` and `basic`: per slice (own first), the planes of the tile's crop.
+    #[inline(always)]
     fn filter_group(&self, group: &Group, noisy: &TileSpectra, basic: Option<&TileSpectra>, acc: &mut Accumulator) {
         let k = self.prof.patch;
         let kk = k * k;

@@ -159,6 +159,7 @@ impl Blocks {
     /// each column's g products top-down, then the columns left to right. Blocks whose partner
     /// falls outside are left as they were (no reference reads them: its candidate is outside).
     #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
     fn cross_sums(
         &self,
         a: &[f64],
@@ -265,6 +266,29 @@ pub fn match_groups(
 /// stack, the same size as `img`), within `across` pixels of the reference's own position there:
 /// slices of a stack are in register, so a small window finds a structure's continuation.
 pub fn match_groups_across(
+    img: &Plane,
+    context: &[&Plane],
+    across: usize,
+    refs: &[(usize, usize)],
+    p: &MatchParams,
+    progress: &dyn Progress,
+) -> Result<Vec<Group>> {
+    match_wide(img, context, across, refs, p, progress)
+}
+
+crate::simd::dispatch! {
+    fn match_wide(
+        img: &Plane,
+        context: &[&Plane],
+        across: usize,
+        refs: &[(usize, usize)],
+        p: &MatchParams,
+        progress: &dyn Progress,
+    ) -> Result<Vec<Group>> => match_body
+}
+
+#[inline(always)]
+fn match_body(
     img: &Plane,
     context: &[&Plane],
     across: usize,

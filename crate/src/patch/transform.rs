@@ -21,6 +21,15 @@ pub fn dct_matrix(k: usize) -> Vec<f32> {
 /// from 0, exactly as n [`axpy`] calls into zeros would, so results keep their bits; but a
 /// chunk of the output stays in registers over all rows instead of being stored once per row.
 pub fn combine_rows(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) {
+    combine_wide(out, rows, w, stride)
+}
+
+crate::simd::dispatch! {
+    fn combine_wide(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) => combine_body
+}
+
+#[inline(always)]
+fn combine_body(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) {
     const CHUNK: usize = 16;
     let len = out.len();
     let n = rows.len() / len.max(1);
@@ -56,6 +65,15 @@ pub fn axpy(y: &mut [f32], a: f32, x: &[f32]) {
 /// Y = C X C^T for a k x k patch (row-major); `tmp` is scratch of k * k. The usual sizes get
 /// their own copy of the loops with k known, which the compiler unrolls.
 pub fn dct2(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
+    dct2_wide(c, k, x, y, tmp)
+}
+
+crate::simd::dispatch! {
+    fn dct2_wide(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) => dct2_sizes
+}
+
+#[inline(always)]
+fn dct2_sizes(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
     match k {
         8 => dct2_body(c, 8, x, y, tmp),
         12 => dct2_body(c, 12, x, y, tmp),
@@ -65,6 +83,15 @@ pub fn dct2(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
 
 /// X = C^T Y C, the inverse of `dct2`.
 pub fn idct2(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
+    idct2_wide(c, k, y, x, tmp)
+}
+
+crate::simd::dispatch! {
+    fn idct2_wide(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) => idct2_sizes
+}
+
+#[inline(always)]
+fn idct2_sizes(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
     match k {
         8 => idct2_body(c, 8, y, x, tmp),
         12 => idct2_body(c, 12, y, x, tmp),
@@ -173,6 +200,15 @@ fn is_complete_uniform(weights: &[f64], n: usize) -> bool {
 /// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
 /// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
 pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
+    basis_wide(weights, n)
+}
+
+crate::simd::dispatch! {
+    fn basis_wide(weights: &[f64], n: usize) -> DMatrix<f64> => basis_body
+}
+
+#[inline(always)]
+fn basis_body(weights: &[f64], n: usize) -> DMatrix<f64> {
     // A complete graph of equal weights (every flat group under the noise-tested graph): with the
     // path tie-break its eigenvectors are the DCT-II basis in frequency order, in closed form
     // (the eigensolver would give the same up to rounding, at O(n^3)).
