@@ -262,22 +262,12 @@ pub fn match_groups(
     match_groups_across(img, &[], 0, refs, p, progress)
 }
 
-/// As [`match_groups`], with candidates also taken from `context` (neighbouring slices of a
-/// stack, the same size as `img`), within `across` pixels of the reference's own position there:
-/// slices of a stack are in register, so a small window finds a structure's continuation.
-pub fn match_groups_across(
-    img: &Plane,
-    context: &[&Plane],
-    across: usize,
-    refs: &[(usize, usize)],
-    p: &MatchParams,
-    progress: &dyn Progress,
-) -> Result<Vec<Group>> {
-    match_wide(img, context, across, refs, p, progress)
-}
-
 crate::simd::dispatch! {
-    fn match_wide(
+    /// As [`match_groups`], with candidates also taken from `context` (neighbouring slices of a
+    /// stack, the same size as `img`), within `across` pixels of the reference's own position
+    /// there: slices of a stack are in register, so a small window finds a structure's
+    /// continuation.
+    pub fn match_groups_across(
         img: &Plane,
         context: &[&Plane],
         across: usize,

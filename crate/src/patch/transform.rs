@@ -16,16 +16,12 @@ pub fn dct_matrix(k: usize) -> Vec<f32> {
     c
 }
 
-/// out = sum over s of w[s * stride] rows[s], rows of `out.len()` values each: the across-group
-/// transform and its inverse (a small matrix product). Each output value is summed in s order
-/// from 0, exactly as n [`axpy`] calls into zeros would, so results keep their bits; but a
-/// chunk of the output stays in registers over all rows instead of being stored once per row.
-pub fn combine_rows(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) {
-    combine_wide(out, rows, w, stride)
-}
-
 crate::simd::dispatch! {
-    fn combine_wide(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) => combine_body
+    /// out = sum over s of w[s * stride] rows[s], rows of `out.len()` values each: the across-group
+    /// transform and its inverse (a small matrix product). Each output value is summed in s order
+    /// from 0, exactly as n [`axpy`] calls into zeros would, so results keep their bits; but a
+    /// chunk of the output stays in registers over all rows instead of being stored once per row.
+    pub fn combine_rows(out: &mut [f32], rows: &[f32], w: &[f32], stride: usize) => combine_body
 }
 
 #[inline(always)]
@@ -62,14 +58,10 @@ pub fn axpy(y: &mut [f32], a: f32, x: &[f32]) {
     }
 }
 
-/// Y = C X C^T for a k x k patch (row-major); `tmp` is scratch of k * k. The usual sizes get
-/// their own copy of the loops with k known, which the compiler unrolls.
-pub fn dct2(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
-    dct2_wide(c, k, x, y, tmp)
-}
-
 crate::simd::dispatch! {
-    fn dct2_wide(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) => dct2_sizes
+    /// Y = C X C^T for a k x k patch (row-major); `tmp` is scratch of k * k. The usual sizes get
+    /// their own copy of the loops with k known, which the compiler unrolls.
+    pub fn dct2(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) => dct2_sizes
 }
 
 #[inline(always)]
@@ -81,13 +73,9 @@ fn dct2_sizes(c: &[f32], k: usize, x: &[f32], y: &mut [f32], tmp: &mut [f32]) {
     }
 }
 
-/// X = C^T Y C, the inverse of `dct2`.
-pub fn idct2(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) {
-    idct2_wide(c, k, y, x, tmp)
-}
-
 crate::simd::dispatch! {
-    fn idct2_wide(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) => idct2_sizes
+    /// X = C^T Y C, the inverse of `dct2`.
+    pub fn idct2(c: &[f32], k: usize, y: &[f32], x: &mut [f32], tmp: &mut [f32]) => idct2_sizes
 }
 
 #[inline(always)]
@@ -197,14 +185,10 @@ fn is_complete_uniform(weights: &[f64], n: usize) -> bool {
     n > 1 && w0 > 0.0 && (0..n).all(|i| (0..n).all(|j| i == j || weights[i * n + j] == w0))
 }
 
-/// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
-/// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
-pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> {
-    basis_wide(weights, n)
-}
-
 crate::simd::dispatch! {
-    fn basis_wide(weights: &[f64], n: usize) -> DMatrix<f64> => basis_body
+    /// Eigenvectors of L = D - W (columns, eigenvalues ascending) for symmetric non-negative weights
+    /// W (n x n, diagonal ignored). Column 0 is the constant vector when the graph is connected.
+    pub fn graph_fourier_basis(weights: &[f64], n: usize) -> DMatrix<f64> => basis_body
 }
 
 #[inline(always)]
