@@ -245,7 +245,7 @@ function wireBatch() {
 // One table of every setting's parameters and metrics: shown under the board, and the CSV.
 function tableRows() {
   const rows = app.panes.map((p) => p.metricsRow()).filter(Boolean);
-  const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', ...paramColumns.map((c) => c.name),
+  const cols = ['setting', 'method', 'noise', 'noise_model', 'sigma', 'sigma_estimated', ...paramColumns().map((c) => c.name),
     'slices_joined', 'residual_std_over_sigma', 'residual_lag1_correlation', 'residual_edge_correlation', 'estimated_psnr', 'estimated_gain_db', 'estimated_mse', 'psnr', 'ssim', 'seconds'];
   const cell = (v) => (v === null || v === undefined ? '' : String(v));
   const image = app.source ? app.source.name.replace(/[",\n]/g, ' ') : '';

@@ -6,29 +6,13 @@ import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 import { verdict, fmt } from './verdict.js';
 
-// The settings the page shows, by form field name. A numeric field names its setting (`key`):
-// label, limits, help and method come from the core's table of settings (settingFields); a
-// choice names its setting (`choice`): label, options, help and method come from the core's
-// table of choices (settingChoices). So a range or an option is written once. A method's fields
-// are built into its own fieldset (methodFieldsets); `only` names the class of a field shown only
-// in some cases.
-const fields = {
-  // Its list and help come from the core's table of methods (app.methods).
-  method: { get: (s) => s.method, set: (s, v) => { s.method = v; } },
-  noise: { choice: 'noise' },
-  'pg-threshold': { key: 'patch_graph.threshold' },
-  'pg-patch': { key: 'patch_graph.patch_size' },
-  // One group size on the page for both stages.
-  'pg-group': { key: 'patch_graph.group_size_hard',
-    set: (s, v) => { s.patch_graph.group_size_hard = +v; s.patch_graph.group_size_wiener = +v; } },
-  'pg-search': { key: 'patch_graph.search_radius' },
-  'pg-slices': { key: 'patch_graph.neighbour_slices', only: 'only-stack' },
-  'px-graph': { choice: 'pixel_graph.graph' },
-  'px-filter': { choice: 'pixel_graph.filter' },
-  'px-strength': { key: 'pixel_graph.strength' },
-  'px-cut': { key: 'pixel_graph.cut_threshold', only: 'cut-grid-only' },
-  'px-passes': { key: 'pixel_graph.passes' },
-};
+// The settings the page shows, by form field name: the method list, then every setting the
+// core's tables (settingFields, settingChoices) mark as shown on the page (`page.shown`), named by
+// its settings key, choices first, in the tables' order. Label, limits, options, help, method,
+// when it shows (`page.only`, a class the style hides otherwise) and another setting the same box
+// also sets (`page.also`) come from the tables, so a setting joins the page by one mark in the
+// core. Built once, from the core's first answer (pageFields).
+let fields = null;
 
 // Reading and writing a setting by its dotted key ('patch_graph.threshold').
 const getKey = (s, key) => key.split('.').reduce((o, k) => o[k], s);
@@ -37,28 +21,43 @@ const setKey = (s, key, v) => {
   const last = path.pop();
   path.reduce((o, k) => o[k], s)[last] = v;
 };
-for (const fld of Object.values(fields)) {
-  const key = fld.key || fld.choice;
-  if (!key) continue;
-  fld.get ||= (s) => getKey(s, key);
-  // Numbers as numbers; a choice's value as the text settings files use.
-  fld.set ||= (s, v) => setKey(s, key, fld.key ? +v : v);
+
+function pageFields(tables) {
+  if (fields) return fields;
+  fields = { method: { get: (s) => s.method, set: (s, v) => { s.method = v; } } };
+  const entry = (info, numeric) => ({
+    info,
+    only: info.page.only,
+    get: (s) => getKey(s, info.key),
+    // Numbers as numbers; a choice's value as the text settings files use.
+    set: (s, v) => {
+      const value = numeric ? +v : v;
+      setKey(s, info.key, value);
+      if (info.page.also) setKey(s, info.page.also, value);
+    },
+    numeric,
+  });
+  for (const c of tables.choices.filter((x) => x.page.shown)) fields[c.key] = entry(c, false);
+  for (const f of tables.fields.filter((x) => x.page.shown)) fields[f.key] = entry(f, true);
+  return fields;
 }
 
 // The parameter columns of the board's table and its CSV: every method's own form field, named by
 // the last part of its settings path, in form order. A method's settings live under its name
 // ('patch_graph.threshold' belongs to 'patch-graph'), so a field is empty for the other method.
-export const paramColumns = Object.values(fields)
-  .filter((fld) => (fld.key || fld.choice || '').includes('.'))
-  .map((fld) => {
-    const [group, name] = (fld.key || fld.choice).split('.');
-    return { name, method: group.replace('_', '-'), get: fld.get };
-  });
+export function paramColumns() {
+  return Object.entries(fields || {})
+    .filter(([name]) => name.includes('.'))
+    .map(([name, fld]) => {
+      const [group, last] = name.split('.');
+      return { name: last, method: group.replace('_', '-'), get: fld.get };
+    });
+}
 
-// One fieldset per method (the core's table of methods), holding the fields the core's tables of
-// settings and choices give to that method, in `fields` order; marked
-// data-for-method so the pane shows only its own method's (Pane.showMethod).
-function methodFieldsets(form, tables, methods) {
+// One fieldset per method (the core's table of methods), holding the fields the core's tables
+// give to that method, in `fields` order; marked data-for-method so the pane shows only its own
+// method's (Pane.showMethod).
+function methodFieldsets(form, methods) {
   for (const m of methods) {
     const set = document.createElement('fieldset');
     set.dataset.forMethod = m.name;
@@ -66,12 +65,11 @@ function methodFieldsets(form, tables, methods) {
     legend.textContent = m.label;
     set.append(legend);
     for (const [name, fld] of Object.entries(fields)) {
-      const info = describe(fld, tables);
-      if (!info || info.method !== m.name) continue;
+      if (!fld.info || fld.info.method !== m.name) continue;
       const label = document.createElement('label');
       if (fld.only) label.classList.add(fld.only);
-      const input = document.createElement(fld.choice ? 'select' : 'input');
-      if (!fld.choice) input.type = 'number';
+      const input = document.createElement(fld.numeric ? 'input' : 'select');
+      if (fld.numeric) input.type = 'number';
       input.name = name;
       label.append(input);
       set.append(label);
@@ -80,30 +78,23 @@ function methodFieldsets(form, tables, methods) {
   }
 }
 
-// A field's entry in the core's tables ({fields, choices}); none for the method list.
-function describe(fld, tables) {
-  const info = fld.key ? tables.fields.find((f) => f.key === fld.key)
-    : fld.choice ? tables.choices.find((c) => c.key === fld.choice) : null;
-  if ((fld.key || fld.choice) && !info) throw new Error(`the core describes no setting ${fld.key || fld.choice}`);
-  return info;
-}
-
 // The method list, each numeric field's label, limits and help and each choice's label, options
 // and help, from the core's tables; hover help on every field, and the same lines listed in the
 // form's "What these settings do".
 function addHelp(form, tables, methods) {
-  methodFieldsets(form, tables, methods);
+  pageFields(tables);
+  methodFieldsets(form, methods);
   const list = form.querySelector('.param-help dl');
   form.elements.method.replaceChildren(...methods.map((m) => new Option(m.label, m.name)));
   fields.method.help = methods.map((m) => `${m.label}: ${m.help}`).join(' ');
   for (const [name, fld] of Object.entries(fields)) {
     const input = form.elements[name];
-    if (!input) throw new Error(`no method of the core's table takes the field ${name}`);
+    if (!input) throw new Error(`the page's form has no place for the setting ${name}`);
     const label = input.closest('label');
-    const info = describe(fld, tables);
+    const info = fld.info;
     if (info) label.prepend(`${info.label} `);
-    if (info && fld.key) Object.assign(input, { min: info.zero_means ? 0 : info.min, max: info.max, step: info.step });
-    if (info && fld.choice) input.replaceChildren(...info.options.map(([value, text]) => new Option(text, value)));
+    if (info && fld.numeric) Object.assign(input, { min: info.zero_means ? 0 : info.min, max: info.max, step: info.step });
+    if (info && !fld.numeric) input.replaceChildren(...info.options.map(([value, text]) => new Option(text, value)));
     const help = info ? info.help : fld.help;
     label.title = help;
     const dt = document.createElement('dt');
@@ -403,7 +394,7 @@ export class Pane {
       sigma: round(this.fileSigma(r), 6),
       sigma_estimated: r.report.sigma_was_estimated,
       // The parameters that made the result, so the table and the CSV say what was compared.
-      ...Object.fromEntries(paramColumns.map((c) => [c.name, c.method === st.method ? c.get(st) : null])),
+      ...Object.fromEntries(paramColumns().map((c) => [c.name, c.method === st.method ? c.get(st) : null])),
       // Stacks: how many neighbouring slices lent their patches (absent for single images).
       slices_joined: r.report.slices_joined ?? null,
       residual_std_over_sigma: round(mean(res.map((x) => x.std_over_sigma)), 4),

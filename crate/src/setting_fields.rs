@@ -26,10 +26,34 @@ pub struct Field {
     pub method: Option<Method>,
     /// One line of help.
     pub help: &'static str,
+    /// Where the page's form shows it ([`OnPage`]).
+    pub page: OnPage,
 }
 
+/// Where the page's form shows a setting: a method's own settings in that method's part of the
+/// form, in the table's order; settings of every run (sigma, the noise model) in the form's
+/// fixed head. Settings files, the CLI and the page's sweep take every setting either way.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
+pub struct OnPage {
+    /// Whether the form has a box or list for it.
+    pub shown: bool,
+    /// Shown only in some cases: the class the page's style hides otherwise (`only-stack`: a
+    /// stack is open; `cut-grid-only`: the pixel graph is the cut grid).
+    pub only: Option<&'static str>,
+    /// Another setting the same box sets to the same value (one group size for both stages).
+    pub also: Option<&'static str>,
+}
+
+const SHOWN: OnPage = OnPage { shown: true, only: None, also: None };
+const HIDDEN: OnPage = OnPage { shown: false, only: None, also: None };
+
 const fn f(key: &'static str, label: &'static str, min: f64, max: f64, step: f64, help: &'static str) -> Field {
-    Field { key, label, min, max, step, zero_means: None, method: None, help }
+    Field { key, label, min, max, step, zero_means: None, method: None, help, page: HIDDEN }
+}
+
+/// The same field, shown in the page's form.
+const fn shown(field: Field) -> Field {
+    Field { page: SHOWN, ..field }
 }
 
 const fn pg(field: Field) -> Field {
@@ -48,22 +72,32 @@ pub const FIELDS: &[Field] = &[
     f("read_noise", "Read noise", 0.0, 65535.0, 0.1, "Photon noise: the Gaussian read-noise std in grey levels."),
     pg(Field {
         zero_means: Some("by noise: 8, or 12 at high noise"),
+        page: SHOWN,
         ..f("patch_graph.patch_size", "Patch size (0 = by noise)", 4.0, 16.0, 1.0, "Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.")
     }),
     pg(f("patch_graph.step", "Step", 1.0, 8.0, 1.0, "Distance between reference patches; smaller is slower and slightly better.")),
-    pg(f("patch_graph.search_radius", "Search radius", 2.0, 24.0, 1.0, "How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer.")),
-    pg(f("patch_graph.group_size_hard", "Group size", 1.0, 32.0, 1.0, "Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.")),
+    pg(shown(f("patch_graph.search_radius", "Search radius", 2.0, 24.0, 1.0, "How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer."))),
+    pg(Field {
+        page: OnPage { also: Some("patch_graph.group_size_wiener"), ..SHOWN },
+        ..f("patch_graph.group_size_hard", "Group size", 1.0, 32.0, 1.0, "Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.")
+    }),
     pg(f("patch_graph.group_size_wiener", "Group size, second stage", 1.0, 32.0, 1.0, "Most similar patches cleaned together in the second stage.")),
-    pg(f("patch_graph.threshold", "Threshold (× sigma)", 0.0, 10.0, 0.1, "Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost.")),
+    pg(shown(f("patch_graph.threshold", "Threshold (× sigma)", 0.0, 10.0, 0.1, "Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost."))),
     pg(f("patch_graph.min_similarity", "Least similarity", -1.0, 1.0, 0.01, "Patches with a lower SSIM to the reference are not grouped.")),
     pg(f("patch_graph.tile_size", "Tile size", 16.0, 4096.0, 1.0, "Side of a block of reference patches processed together; results do not depend on it.")),
-    pg(f("patch_graph.neighbour_slices", "Neighbour slices", 0.0, 2.0, 1.0, "Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.")),
-    px(f("pixel_graph.strength", "Strength", 0.0, 20.0, 0.1, "Multiplies the smoothing chosen from sigma; 1 is the tuned default.")),
+    pg(Field {
+        page: OnPage { only: Some("only-stack"), ..SHOWN },
+        ..f("patch_graph.neighbour_slices", "Neighbour slices", 0.0, 2.0, 1.0, "Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.")
+    }),
+    px(shown(f("pixel_graph.strength", "Strength", 0.0, 20.0, 0.1, "Multiplies the smoothing chosen from sigma; 1 is the tuned default."))),
     px(f("pixel_graph.weight_scale", "Weight scale (× sigma)", 0.05, 20.0, 0.05, "Edge weight scale as a multiple of sigma.")),
-    px(f("pixel_graph.cut_threshold", "Edge cut (× sigma)", 0.1, 1000.0, 0.1, "Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.")),
+    px(Field {
+        page: OnPage { only: Some("cut-grid-only"), ..SHOWN },
+        ..f("pixel_graph.cut_threshold", "Edge cut (× sigma)", 0.1, 1000.0, 0.1, "Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.")
+    }),
     px(f("pixel_graph.radius", "Neighbour radius", 1.0, 3.0, 1.0, "Neighbour radius of the cut grid (1 = 8 neighbours).")),
     px(f("pixel_graph.patch_radius", "Patch radius", 0.0, 3.0, 1.0, "Radius of the patch compared to weigh an edge (0 = single pixels).")),
-    px(f("pixel_graph.passes", "Passes", 1.0, 5.0, 1.0, "Times the graph is rebuilt from the last result and filtered again.")),
+    px(shown(f("pixel_graph.passes", "Passes", 1.0, 5.0, 1.0, "Times the graph is rebuilt from the last result and filtered again."))),
     px(f("pixel_graph.guide_blur", "Guide blur", 0.0, 5.0, 0.1, "Gaussian pre-smoothing (pixels) of the first guide.")),
 ];
 
@@ -80,6 +114,8 @@ pub struct Choice {
     pub options: &'static [(&'static str, &'static str)],
     /// One line of help.
     pub help: &'static str,
+    /// Where the page's form shows it ([`OnPage`]).
+    pub page: OnPage,
 }
 
 /// Every choice the page offers besides the method, in the order the page lists them (the
@@ -95,6 +131,7 @@ pub const CHOICES: &[Choice] = &[
             ("poisson", "Photon counts (Poisson with read noise)"),
         ],
         help: "What the noise is: fitted from the image (default), one level everywhere, or photon counts whose noise grows with brightness.",
+        page: SHOWN,
     },
     Choice {
         key: "pixel_graph.graph",
@@ -102,6 +139,7 @@ pub const CHOICES: &[Choice] = &[
         method: Some(Method::PixelGraph),
         options: &[("cut-grid", "Neighbours, cut at edges (fast)"), ("non-local", "Most similar pixels nearby (about 4× slower)")],
         help: "Which pixels are smoothed together: each pixel's neighbours, cut where the intensity jumps; or, non-local, the 8 pixels of a 7 × 7 window whose surroundings look most like its own (all of them where the noise cannot tell them apart).",
+        page: SHOWN,
     },
     Choice {
         key: "pixel_graph.filter",
@@ -109,6 +147,7 @@ pub const CHOICES: &[Choice] = &[
         method: Some(Method::PixelGraph),
         options: &[("tikhonov", "Tikhonov (solver)"), ("heat", "Heat kernel (polynomial)")],
         help: "Tikhonov solves for the smoothest image near the input; the heat kernel diffuses along the graph (a polynomial, no solver).",
+        page: SHOWN,
     },
 ];
 
@@ -132,6 +171,37 @@ pub fn check(key: &'static str, value: f64) -> Result<()> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Invariants of the page marks: a box that also sets another setting sets one of the same
+    /// method and range (one group size for both stages); a setting shown only in some cases names
+    /// a class the page's style hides; a shown setting of every run has its place in the pane's
+    /// head (the style sheet and the page are read as they ship).
+    #[test]
+    fn the_page_marks_name_what_exists() {
+        let style = include_str!("../../www/style.css");
+        let marks =
+            FIELDS.iter().map(|f| (f.key, f.method, f.page)).chain(CHOICES.iter().map(|c| (c.key, c.method, c.page)));
+        for (key, method, page) in marks {
+            if let Some(also) = page.also {
+                let (a, b) = (field(key).unwrap(), field(also).unwrap_or_else(|| panic!("{key}: no setting {also}")));
+                assert!(
+                    a.method == b.method && a.min == b.min && a.max == b.max && a.step == b.step,
+                    "{key} and {also}"
+                );
+            }
+            if let Some(only) = page.only {
+                assert!(page.shown, "{key}: shown only in some cases, but not shown");
+                assert!(
+                    style.contains(&format!(".{only} {{ display: none; }}")),
+                    "{key}: the style never hides .{only}"
+                );
+            }
+            // A setting of every run has a fixed place in the pane's head; a method's is built.
+            let head = include_str!("../../www/index.html");
+            let placed = method.is_some() || !page.shown || head.contains(&format!("name=\"{key}\""));
+            assert!(placed, "{key}: shown, but the pane's head has no place for it");
+        }
+    }
 
     /// The README's settings table states each numeric setting's range: it must be the table's
     /// (rows like "| `patch_graph.step` | 1 to 8 | ...").

@@ -30,7 +30,7 @@ test('a result is marked out of date after an edit and after loading settings', 
   assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), false);
   assert.match(await pane(0).locator('.metrics').textContent(), /PSNR against reference\d/);
   assert.match(await pane(0).locator('.verdict').textContent(), /\w+/);
-  await pane(0).locator('input[name=pg-threshold]').fill('3.5');
+  await pane(0).locator('input[name="patch_graph.threshold"]').fill('3.5');
   assert.equal(await pane(0).evaluate((el) => el.classList.contains('stale')), true);
   assert.equal(await pane(0).locator('.stale-note').isVisible(), true);
   assert.match(await pane(0).locator('.save-png').textContent(), /runs the new settings first/);
@@ -62,15 +62,15 @@ test('views are offered only where the method has them', async () => {
   await pane(1).locator('.param-help summary').click();
   const help = await pane(1).locator('.param-help dt:visible').allTextContents();
   assert.ok(help.includes('Edge cut (× sigma)') && !help.includes('Threshold (× sigma)'), help.join(' | '));
-  assert.match(await pane(1).locator('input[name=px-cut]').locator('..').getAttribute('title'), /edge/);
+  assert.match(await pane(1).locator('input[name="pixel_graph.cut_threshold"]').locator('..').getAttribute('title'), /edge/);
   await pane(1).locator('.param-help summary').click();
   // Labels and limits come from the core's table of settings; the ranges here are the README's
   // settings table (checked against the core's by a Rust test), 0 being allowed for the patch size.
-  const limits = (name) => pane(0).locator(`input[name=${name}]`).evaluate((e) => [e.min, e.max, e.step]);
-  assert.deepEqual(await limits('pg-search'), ['2', '24', '1']);
-  assert.deepEqual(await limits('pg-patch'), ['0', '16', '1']);
-  assert.deepEqual(await limits('px-cut'), ['0.1', '1000', '0.1']);
-  assert.match(await pane(0).locator('input[name=pg-search]').locator('..').textContent(), /^Search radius/);
+  const limits = (name) => pane(0).locator(`input[name="${name}"]`).evaluate((e) => [e.min, e.max, e.step]);
+  assert.deepEqual(await limits('patch_graph.search_radius'), ['2', '24', '1']);
+  assert.deepEqual(await limits('patch_graph.patch_size'), ['0', '16', '1']);
+  assert.deepEqual(await limits('pixel_graph.cut_threshold'), ['0.1', '1000', '0.1']);
+  assert.match(await pane(0).locator('input[name="patch_graph.search_radius"]').locator('..').textContent(), /^Search radius/);
   assert.deepEqual(s.consoleErrors, []);
 });
 

@@ -71,7 +71,7 @@ test('a sweep makes four settings of one parameter and runs them', async () => {
   await s.page.locator('#sweep-to').fill('3.5');
   await s.page.locator('#sweep-make').click();
   await s.page.waitForFunction(() => document.querySelectorAll('.pane').length === 4);
-  const thresholds = await s.page.$$eval('input[name=pg-threshold]', (els) => els.map((e) => Number(e.value)));
+  const thresholds = await s.page.$$eval('input[name="patch_graph.threshold"]', (els) => els.map((e) => Number(e.value)));
   assert.deepEqual(thresholds, [2, 2.5, 3, 3.5]);
   for (let i = 0; i < 4; i += 1) {
     await pane(i).locator('.metrics').filter({ hasText: /Estimated PSNR \(no reference\)\d/ }).waitFor({ timeout: 240000 });

@@ -48,7 +48,7 @@ test('a TIFF z-stack: one slice control for all settings, every page saved', asy
   assert.match(await page.locator('#slice-label').textContent(), /page 1 of 3/);
   assert.match(await page.locator('#source-info').textContent(), /16-bit unsigned TIFF/);
   // The stack's settings show (and only for stacks): neighbour slices, 1 by default.
-  assert.equal(await pane().locator('input[name=pg-slices]').inputValue(), '1');
+  assert.equal(await pane().locator('input[name="patch_graph.neighbour_slices"]').inputValue(), '1');
   await pane().locator('.run').click();
   assert.match(await finishedText(page, 0), /done/);
   // Denoised as a slice of the volume: the page says how many slices lent their patches.
@@ -90,7 +90,7 @@ print('same' if a.shape == b.shape and np.array_equal(a, b) else f'differ at {in
   // A single image shows no stack settings.
   await page.setInputFiles('#file', join(ROOT, 'sample-images', 'cells-noisy.png'));
   await page.waitForFunction(() => !document.body.hasAttribute('data-stack'));
-  assert.equal(await pane().locator('input[name=pg-slices]').isVisible(), false);
+  assert.equal(await pane().locator('input[name="patch_graph.neighbour_slices"]').isVisible(), false);
 });
 
 test('a float FITS cube with blank pixels saves as FITS, blanks where they were', async () => {

@@ -82,9 +82,9 @@ test('two settings run side by side, differ, and match the CLI', async () => {
   await page.setInputFiles('#reference', join(SAMPLES, 'chart-clean.png'));
   await page.waitForFunction(() => /chart-clean/.test(document.getElementById('reference-info').textContent));
   // Setting B (pixel graph) on its non-local graph, so the CLI check below covers it too.
-  await page.locator('.pane').nth(1).locator('select[name=px-graph]').selectOption('non-local');
+  await page.locator('.pane').nth(1).locator('select[name="pixel_graph.graph"]').selectOption('non-local');
   // The edge cut does nothing on that graph, so it is not offered (invariant of the form).
-  assert.equal(await page.locator('.pane').nth(1).locator('input[name=px-cut]').isVisible(), false);
+  assert.equal(await page.locator('.pane').nth(1).locator('input[name="pixel_graph.cut_threshold"]').isVisible(), false);
   // Nor is its line in "What these settings do" (the list holds every field's help).
   const helpTerms = page.locator('.pane').nth(1).locator('.param-help dt');
   await page.locator('.pane').nth(1).locator('.param-help summary').click();
