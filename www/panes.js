@@ -5,6 +5,7 @@ import { splitEstimate } from './stitch.js';
 import { view, applyTo, attach } from './view.js';
 import { split, difference, DIFFERENCE_GAIN } from './compare.js';
 import { verdict, fmt } from './verdict.js';
+import { getKey, setKey } from './keys.js';
 
 // The settings the page shows, by form field name: the method list, then every setting the
 // core's tables (settingFields, settingChoices) mark as shown on the page (`page.shown`), named by
@@ -14,14 +15,6 @@ import { verdict, fmt } from './verdict.js';
 // core. Built once, from the core's first answer (pageFields).
 let fields = null;
 
-// Reading and writing a setting by its dotted key ('patch_graph.threshold').
-const getKey = (s, key) => key.split('.').reduce((o, k) => o[k], s);
-const setKey = (s, key, v) => {
-  const path = key.split('.');
-  const last = path.pop();
-  path.reduce((o, k) => o[k], s)[last] = v;
-};
-
 function pageFields(tables) {
   if (fields) return fields;
   fields = { method: { get: (s) => s.method, set: (s, v) => { s.method = v; } } };
@@ -30,11 +23,7 @@ function pageFields(tables) {
     only: info.page.only,
     get: (s) => getKey(s, info.key),
     // Numbers as numbers; a choice's value as the text settings files use.
-    set: (s, v) => {
-      const value = numeric ? +v : v;
-      setKey(s, info.key, value);
-      if (info.page.also) setKey(s, info.page.also, value);
-    },
+    set: (s, v) => setKey(s, info.key, numeric ? +v : v, info.page.also),
     numeric,
   });
   for (const c of tables.choices.filter((x) => x.page.shown)) fields[c.key] = entry(c, false);

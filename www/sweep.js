@@ -1,29 +1,10 @@
 // "Sweep a parameter": Setting A's settings copied into four settings with one parameter at four
 // evenly spaced values (in ratio for the pixel graph's strength), then all run, so the estimated
 // errors say which value suits the image.
+import { getKey, setKey } from './keys.js';
+
 const $ = (id) => document.getElementById(id);
 const SETTINGS = 4;
-
-// The parameters worth sweeping per method, by their settings key; label and limits come from
-// the core's table of settings (app.fields).
-const PARAMETERS = {
-  'patch-graph': {
-    threshold: { key: 'patch_graph.threshold', set: (s, v) => { s.patch_graph.threshold = v; }, get: (s) => s.patch_graph.threshold },
-    group: { key: 'patch_graph.group_size_hard',
-      set: (s, v) => { s.patch_graph.group_size_hard = v; s.patch_graph.group_size_wiener = v; }, get: (s) => s.patch_graph.group_size_hard },
-    search: { key: 'patch_graph.search_radius', set: (s, v) => { s.patch_graph.search_radius = v; }, get: (s) => s.patch_graph.search_radius },
-  },
-  'pixel-graph': {
-    // Its best value reaches 16 on smooth images (BENCHMARKS.md, "Pixel graph: strength picked by
-    // the error estimate"), so it is offered from the default, 1, to 16 in ratio (1, 2.52, 6.35,
-    // 16): the default stays on the board. Over the 48 grey development images the value named
-    // among these gains 0.40 dB in the mean and never falls below the default; from 0.5 (without
-    // the default) the mean fell 0.27 dB, as a value was named too rarely to make up for it.
-    strength: { key: 'pixel_graph.strength', set: (s, v) => { s.pixel_graph.strength = v; }, get: (s) => s.pixel_graph.strength,
-      span: [1, 16], ratio: true },
-    cut: { key: 'pixel_graph.cut_threshold', set: (s, v) => { s.pixel_graph.cut_threshold = v; }, get: (s) => s.pixel_graph.cut_threshold },
-  },
-};
 
 // SETTINGS values from `from` to `to`, evenly spaced (with `ratio` and both ends above 0, each
 // the same multiple of the last, to three digits: 2.52, not 2.51984), rounded to whole numbers
@@ -42,11 +23,14 @@ export function sweepValues(from, to, whole, ratio = false) {
 export function wireSweep(app) {
   const form = $('sweep-form');
   const first = () => app.panes.find((p) => p.name === 'A') || app.panes[0];
-  // The method's parameters with the table's label and limits (a step of 1: whole numbers).
-  const params = () => Object.fromEntries(Object.entries(PARAMETERS[first().settings.method]).map(([k, p]) => {
-    const f = app.fields.find((x) => x.key === p.key);
-    return [k, { label: f.label, min: f.min, max: f.max, whole: f.step === 1, ...p }];
-  }));
+  // The parameters the core's table offers for Setting A's method (`page.sweep`: a span to offer
+  // at first, values in ratio), with its label and limits (a step of 1: whole numbers).
+  const params = () => Object.fromEntries(app.fields
+    .filter((f) => f.page.sweep && f.method === first().settings.method)
+    .map((f) => [f.key, {
+      label: f.label, min: f.min, max: f.max, whole: f.step === 1, span: f.page.sweep.span, ratio: f.page.sweep.ratio,
+      get: (s) => getKey(s, f.key), set: (s, v) => setKey(s, f.key, v, f.page.also),
+    }]));
   const fill = () => {
     const sel = $('sweep-param');
     const keep = sel.value;

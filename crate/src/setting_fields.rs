@@ -33,7 +33,7 @@ pub struct Field {
 /// Where the page's form shows a setting: a method's own settings in that method's part of the
 /// form, in the table's order; settings of every run (sigma, the noise model) in the form's
 /// fixed head. Settings files, the CLI and the page's sweep take every setting either way.
-#[derive(Clone, Copy, Debug, Default, PartialEq, Serialize)]
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
 pub struct OnPage {
     /// Whether the form has a box or list for it.
     pub shown: bool,
@@ -42,10 +42,23 @@ pub struct OnPage {
     pub only: Option<&'static str>,
     /// Another setting the same box sets to the same value (one group size for both stages).
     pub also: Option<&'static str>,
+    /// Offered by the page's "Sweep a parameter" (None: not offered).
+    pub sweep: Option<Sweep>,
 }
 
-const SHOWN: OnPage = OnPage { shown: true, only: None, also: None };
-const HIDDEN: OnPage = OnPage { shown: false, only: None, also: None };
+/// How the page's sweep spaces a setting's four values.
+#[derive(Clone, Copy, Debug, PartialEq, Serialize)]
+pub struct Sweep {
+    /// The span offered at first; None: 0.7 to 1.3 times the setting's value.
+    pub span: Option<(f64, f64)>,
+    /// Each value the same multiple of the last, instead of evenly spaced.
+    pub ratio: bool,
+}
+
+const SHOWN: OnPage = OnPage { shown: true, only: None, also: None, sweep: None };
+const HIDDEN: OnPage = OnPage { shown: false, only: None, also: None, sweep: None };
+/// Shown and offered by the sweep, around its value.
+const SWEPT: OnPage = OnPage { sweep: Some(Sweep { span: None, ratio: false }), ..SHOWN };
 
 const fn f(key: &'static str, label: &'static str, min: f64, max: f64, step: f64, help: &'static str) -> Field {
     Field { key, label, min, max, step, zero_means: None, method: None, help, page: HIDDEN }
@@ -54,6 +67,11 @@ const fn f(key: &'static str, label: &'static str, min: f64, max: f64, step: f64
 /// The same field, shown in the page's form.
 const fn shown(field: Field) -> Field {
     Field { page: SHOWN, ..field }
+}
+
+/// The same field, shown and offered by the page's sweep.
+const fn swept(field: Field) -> Field {
+    Field { page: SWEPT, ..field }
 }
 
 const fn pg(field: Field) -> Field {
@@ -76,23 +94,31 @@ pub const FIELDS: &[Field] = &[
         ..f("patch_graph.patch_size", "Patch size (0 = by noise)", 4.0, 16.0, 1.0, "Side of the square patches compared, in pixels; 0 picks 8, or 12 at high noise.")
     }),
     pg(f("patch_graph.step", "Step", 1.0, 8.0, 1.0, "Distance between reference patches; smaller is slower and slightly better.")),
-    pg(shown(f("patch_graph.search_radius", "Search radius", 2.0, 24.0, 1.0, "How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer."))),
+    pg(swept(f("patch_graph.search_radius", "Search radius", 2.0, 24.0, 1.0, "How far (pixels) to look for similar patches. Larger finds more in smooth images and takes longer."))),
     pg(Field {
-        page: OnPage { also: Some("patch_graph.group_size_wiener"), ..SHOWN },
+        page: OnPage { also: Some("patch_graph.group_size_wiener"), ..SWEPT },
         ..f("patch_graph.group_size_hard", "Group size", 1.0, 32.0, 1.0, "Most similar patches cleaned together. More: smoother flat areas, but unlike patches may be mixed.")
     }),
     pg(f("patch_graph.group_size_wiener", "Group size, second stage", 1.0, 32.0, 1.0, "Most similar patches cleaned together in the second stage.")),
-    pg(shown(f("patch_graph.threshold", "Threshold (× sigma)", 0.0, 10.0, 0.1, "Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost."))),
+    pg(swept(f("patch_graph.threshold", "Threshold (× sigma)", 0.0, 10.0, 0.1, "Coefficients below this many sigmas are taken for noise in the first pass (up to 1.22 times as many in flat areas that hold nothing but noise). Higher: smoother, more fine detail lost."))),
     pg(f("patch_graph.min_similarity", "Least similarity", -1.0, 1.0, 0.01, "Patches with a lower SSIM to the reference are not grouped.")),
     pg(f("patch_graph.tile_size", "Tile size", 16.0, 4096.0, 1.0, "Side of a block of reference patches processed together; results do not depend on it.")),
     pg(Field {
         page: OnPage { only: Some("only-stack"), ..SHOWN },
         ..f("patch_graph.neighbour_slices", "Neighbour slices", 0.0, 2.0, 1.0, "Stacks only: how many slices on each side of an image lend it their patches (0 = each image alone). Pages that do not continue each other are denoised alone anyway.")
     }),
-    px(shown(f("pixel_graph.strength", "Strength", 0.0, 20.0, 0.1, "Multiplies the smoothing chosen from sigma; 1 is the tuned default."))),
+    // Its best value reaches 16 on smooth images (BENCHMARKS.md, "Pixel graph: strength picked by
+    // the error estimate"), so the sweep offers it from the default, 1, to 16 in ratio (1, 2.52,
+    // 6.35, 16): the default stays on the board. Over the 48 grey development images the value
+    // named among these gains 0.40 dB in the mean and never falls below the default; from 0.5
+    // (without the default) the mean fell 0.27 dB, as a value was named too rarely to make up for it.
+    px(Field {
+        page: OnPage { sweep: Some(Sweep { span: Some((1.0, 16.0)), ratio: true }), ..SHOWN },
+        ..f("pixel_graph.strength", "Strength", 0.0, 20.0, 0.1, "Multiplies the smoothing chosen from sigma; 1 is the tuned default.")
+    }),
     px(f("pixel_graph.weight_scale", "Weight scale (× sigma)", 0.05, 20.0, 0.05, "Edge weight scale as a multiple of sigma.")),
     px(Field {
-        page: OnPage { only: Some("cut-grid-only"), ..SHOWN },
+        page: OnPage { only: Some("cut-grid-only"), ..SWEPT },
         ..f("pixel_graph.cut_threshold", "Edge cut (× sigma)", 0.1, 1000.0, 0.1, "Neighbours that differ by more than this many sigmas are not smoothed together (an edge). Lower keeps more edges and more noise.")
     }),
     px(f("pixel_graph.radius", "Neighbour radius", 1.0, 3.0, 1.0, "Neighbour radius of the cut grid (1 = 8 neighbours).")),
@@ -200,6 +226,12 @@ mod tests {
             let head = include_str!("../../www/index.html");
             let placed = method.is_some() || !page.shown || head.contains(&format!("name=\"{key}\""));
             assert!(placed, "{key}: shown, but the pane's head has no place for it");
+            // The sweep copies Setting A and changes one of its method's shown settings, within range.
+            if let Some(sweep) = page.sweep {
+                assert!(page.shown && method.is_some(), "{key}: swept, but not a shown setting of a method");
+                let f = field(key).unwrap();
+                assert!(sweep.span.is_none_or(|(a, b)| f.min <= a && a < b && b <= f.max), "{key}: span out of range");
+            }
         }
     }
 

@@ -66,7 +66,7 @@ test('a sweep makes four settings of one parameter and runs them', async () => {
   // Setting B's result was not saved: the sweep asks before replacing it.
   s.page.once('dialog', (d) => d.accept());
   await s.page.locator('#sweep-open').click();
-  await s.page.selectOption('#sweep-param', 'threshold');
+  await s.page.selectOption('#sweep-param', 'patch_graph.threshold');
   await s.page.locator('#sweep-from').fill('2');
   await s.page.locator('#sweep-to').fill('3.5');
   await s.page.locator('#sweep-make').click();
